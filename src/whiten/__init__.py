@@ -1,0 +1,35 @@
+"""whiten: Gaussian-model statistics through factorizations, never a matrix inverse.
+
+The public API is what this module re-exports; everything in underscored
+modules is private.
+"""
+
+from ._settings import get_options, options, set_options
+from ._version import __version__
+from .errors import (
+    ConditioningWarning,
+    InputError,
+    JitterWarning,
+    ModelFileError,
+    NotPositiveDefiniteError,
+    NumericalWarning,
+    RankDeficiencyWarning,
+    WhitenError,
+)
+from .gaussian import Gaussian, RowEvaluation
+from .linalg import Factor, FactorHealth, RankReport, cholesky, pivoted_cholesky
+
+__all__ = [
+    "__version__",
+    "get_options", "options", "set_options",
+    "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
+    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning",
+    "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
+    "Gaussian", "RowEvaluation",
+]
+
+# --- regression (issue: regression) re-exports go below this line ---
+
+# --- likelihood (issue: likelihoods) re-exports go below this line ---
+
+# --- baseline / monitoring re-exports go below this line ---

@@ -1,0 +1,110 @@
+"""Numerical defaults, kept in one place.
+
+Every threshold the library applies on the user's behalf lives here, so it
+can be read, documented and changed in one spot::
+
+    import whiten
+    with whiten.options(jitter_ceiling=1e-6):
+        f = whiten.cholesky(a)
+
+``whiten.get_options()`` returns the current values.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+from typing import Iterator
+
+from .errors import InputError
+
+__all__ = ["Options", "get_options", "set_options", "options"]
+
+
+@dataclasses.dataclass
+class Options:
+    """Numerical defaults.
+
+    Attributes
+    ----------
+    jitter_start : float
+        First rung of the jitter ladder, relative to the mean diagonal.
+    jitter_factor : float
+        Ratio between consecutive rungs.
+    jitter_ceiling : float
+        Largest relative jitter ``"auto"`` will add before giving up.
+    indefinite_tol : float
+        A pivot of the unit-diagonal matrix below ``-indefinite_tol`` marks the
+        matrix as clearly indefinite: an error, never hidden by jitter.
+    symmetry_rtol : float
+        Largest accepted ``|a - a.T| / max|a|``.
+    digits_warn : float
+        A :class:`~whiten.errors.ConditioningWarning` is issued when the
+        estimated number of decimal digits lost, ``log10(1/rcond)``, exceeds
+        this. With float64 (about 16 digits) the default of 10 leaves about 6
+        trustworthy digits.
+    block_rows : int
+        Rows per block in the blocked many-row paths (cache-sized).
+    """
+
+    jitter_start: float = 1e-10
+    jitter_factor: float = 10.0
+    jitter_ceiling: float = 1e-4
+    indefinite_tol: float = 1e-8
+    symmetry_rtol: float = 1e-10
+    digits_warn: float = 10.0
+    block_rows: int = 8192
+
+    def validate(self) -> None:
+        if not (0 < self.jitter_start <= self.jitter_ceiling):
+            raise InputError(
+                f"jitter_start ({self.jitter_start:g}) must be positive and not above "
+                f"jitter_ceiling ({self.jitter_ceiling:g})"
+            )
+        if self.jitter_factor <= 1:
+            raise InputError(f"jitter_factor must exceed 1, got {self.jitter_factor:g}")
+        if self.block_rows < 1:
+            raise InputError(f"block_rows must be a positive integer, got {self.block_rows}")
+
+
+_current = Options()
+
+
+def get_options() -> Options:
+    """Return the current numerical defaults (a copy)."""
+    return dataclasses.replace(_current)
+
+
+def set_options(**values) -> None:
+    """Change numerical defaults for the rest of the process.
+
+    Raises
+    ------
+    InputError
+        On an unknown name or an invalid value.
+    """
+    global _current
+    known = {f.name for f in dataclasses.fields(Options)}
+    unknown = sorted(set(values) - known)
+    if unknown:
+        raise InputError(f"unknown option(s) {unknown}; choose from {sorted(known)}")
+    new = dataclasses.replace(_current, **values)
+    new.validate()
+    _current = new
+
+
+@contextlib.contextmanager
+def options(**values) -> Iterator[Options]:
+    """Context manager that changes numerical defaults inside a ``with`` block."""
+    global _current
+    saved = _current
+    set_options(**values)
+    try:
+        yield get_options()
+    finally:
+        _current = saved
+
+
+def current() -> Options:
+    """The live options object (internal; do not mutate)."""
+    return _current

@@ -1,0 +1,263 @@
+"""Input checking shared by every layer.
+
+Everything that enters the library passes through here and leaves as a
+float64 ndarray plus (optionally) column names and a row index. Problems are
+reported as :class:`~whiten.errors.InputError` naming the row and column.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Sequence
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = [
+    "as_float_array",
+    "as_rows",
+    "as_square",
+    "check_names",
+    "first_nonfinite",
+    "describe_position",
+]
+
+
+def _is_frame(obj: Any) -> bool:
+    return hasattr(obj, "columns") and hasattr(obj, "dtypes") and hasattr(obj, "to_numpy")
+
+
+def _is_series(obj: Any) -> bool:
+    return hasattr(obj, "dtype") and hasattr(obj, "index") and hasattr(obj, "to_numpy") and not _is_frame(obj)
+
+
+def describe_position(row: int, col: int, names: Sequence[str] | None, index: Any = None) -> str:
+    """Human-readable 'row R, column C' (using labels when there are any)."""
+    rlabel = f"row {row}"
+    if index is not None:
+        try:
+            lab = index[row]
+            if lab != row:
+                rlabel = f"row {row} (index {lab!r})"
+        except Exception:  # pragma: no cover - exotic index types
+            pass
+    clabel = f"column {col}" if names is None else f"column {names[col]!r}"
+    return f"{rlabel}, {clabel}"
+
+
+def first_nonfinite(a: np.ndarray, *, allow_nan: bool = False) -> tuple[int, int] | None:
+    """(row, col) of the first non-finite entry of a 2-D array, or None."""
+    bad = np.isinf(a) if allow_nan else ~np.isfinite(a)
+    if not bad.any():
+        return None
+    r, c = np.argwhere(bad)[0]
+    return int(r), int(c)
+
+
+def _frame_to_array(df, name: str) -> tuple[np.ndarray, list[str], Any]:
+    names = [str(c) for c in df.columns]
+    if len(set(names)) != len(names):
+        dup = sorted({n for n in names if names.count(n) > 1})
+        raise InputError(f"{name}: duplicated column name(s) {dup}; give every column a unique name")
+    for col, dt in zip(df.columns, df.dtypes):
+        if dt.kind not in "biuf":
+            if dt.kind == "c":
+                raise InputError(f"{name}: column {str(col)!r} is complex; whiten works with real numbers")
+            # find the first cell that is not a number, to name it
+            s = df[col]
+            coerced = _coerce_numeric(s)
+            bad = coerced.isna() & ~_is_missing(s)
+            if bad.any():
+                pos = int(np.flatnonzero(bad.to_numpy())[0])
+                raise InputError(
+                    f"{name}: column {str(col)!r} is not numeric: row {pos} "
+                    f"(index {df.index[pos]!r}) holds {s.iloc[pos]!r}. Convert or drop the column "
+                    f"(e.g. select numeric columns with columns=[...])"
+                )
+            if dt.kind == "b":
+                continue
+            df = df.assign(**{col: coerced})
+    try:
+        values = df.to_numpy(dtype=np.float64, na_value=np.nan)
+    except (TypeError, ValueError) as exc:  # pragma: no cover - guarded above
+        raise InputError(f"{name}: could not convert to numbers ({exc})") from None
+    return values, names, df.index
+
+
+def _coerce_numeric(s):
+    import pandas as pd
+
+    return pd.to_numeric(s, errors="coerce")
+
+
+def _is_missing(s):
+    import pandas as pd
+
+    return pd.isna(s)
+
+
+def as_float_array(
+    data: Any,
+    *,
+    name: str = "data",
+    ndim: tuple[int, ...] = (1, 2),
+    allow_nan: bool = False,
+) -> tuple[np.ndarray, list[str] | None, Any]:
+    """Convert ``data`` to a float64 array with names and index.
+
+    Parameters
+    ----------
+    data : array_like or pandas.DataFrame or pandas.Series
+    name : str
+        What to call the argument in messages.
+    ndim : tuple of int
+        Accepted dimensionalities.
+    allow_nan : bool
+        Let NaN through (missing values); infinities are always refused.
+
+    Returns
+    -------
+    values : ndarray, float64
+        A new array or a read-only view; callers never write into it.
+    names : list of str or None
+    index : pandas.Index or None
+
+    Raises
+    ------
+    InputError
+        Non-numeric, complex, wrong dimensionality, or non-finite entries.
+    """
+    names = None
+    index = None
+    if _is_frame(data):
+        values, names, index = _frame_to_array(data, name)
+    elif _is_series(data):
+        index = data.index
+        try:
+            values = data.to_numpy(dtype=np.float64, na_value=np.nan)
+        except (TypeError, ValueError):
+            raise InputError(f"{name}: series {getattr(data, 'name', '')!r} is not numeric") from None
+    else:
+        arr = np.asarray(data)
+        if arr.dtype.kind == "c":
+            raise InputError(f"{name}: complex values are not supported; whiten works with real numbers")
+        if arr.dtype.kind not in "biuf":
+            try:
+                arr = arr.astype(np.float64)
+            except (TypeError, ValueError):
+                raise InputError(
+                    f"{name}: could not read as numbers (dtype {arr.dtype}); pass a numeric array"
+                ) from None
+        values = np.asarray(arr, dtype=np.float64)
+    if values.ndim not in ndim:
+        raise InputError(
+            f"{name}: expected a {' or '.join(f'{d}-D' for d in ndim)} array, got shape {values.shape}"
+        )
+    if values.size:
+        v2 = values.reshape(values.shape[0], -1) if values.ndim >= 2 else values.reshape(1, -1)
+        pos = first_nonfinite(v2, allow_nan=allow_nan)
+        if pos is not None:
+            r, c = pos
+            what = v2[r, c]
+            if values.ndim == 1:
+                where = f"entry {c}" + (f" (index {index[c]!r})" if index is not None else "")
+            else:
+                where = describe_position(r, c, names, index)
+            hint = "" if allow_nan else " (missing values are not allowed here)"
+            raise InputError(f"{name}: {where} is {what}{hint}; every value must be a finite number")
+    return values, names, index
+
+
+def check_names(given: Sequence[str] | None, expected: Sequence[str] | None, *, name: str = "data") -> None:
+    """Raise when the column names of the data differ from the model's."""
+    if given is None or expected is None:
+        return
+    given = list(given)
+    expected = list(expected)
+    if given == expected:
+        return
+    missing = [c for c in expected if c not in given]
+    extra = [c for c in given if c not in expected]
+    if not missing and not extra:
+        raise InputError(
+            f"{name}: columns are in a different order than the model's; expected {expected}. "
+            "Reorder with data[model_columns]"
+        )
+    raise InputError(f"{name}: column mismatch with the model: missing {missing}, extra {extra}")
+
+
+def as_rows(
+    x: Any,
+    p: int,
+    *,
+    names: Sequence[str] | None = None,
+    name: str = "x",
+    allow_nan: bool = False,
+) -> tuple[np.ndarray, bool, Any]:
+    """Rows of observations as a float64 (N, p) array.
+
+    A 1-D input of length p is one row. A DataFrame whose columns are a
+    superset of ``names`` is reordered/selected by name.
+
+    Returns
+    -------
+    rows : ndarray, shape (N, p)
+    was_1d : bool
+    index : pandas.Index or None
+    """
+    if _is_frame(x) and names is not None:
+        cols = [str(c) for c in x.columns]
+        if cols != list(names):
+            missing = [c for c in names if c not in cols]
+            if missing:
+                extra = [c for c in cols if c not in names]
+                raise InputError(f"{name}: column mismatch with the model: missing {missing}, extra {extra}")
+            x = x[[c for c in x.columns if str(c) in set(names)]]
+            x = x[[c for c in x.columns]]
+            order = {c: i for i, c in enumerate(names)}
+            x = x[sorted(x.columns, key=lambda c: order[str(c)])]
+    values, _, index = as_float_array(x, name=name, ndim=(1, 2), allow_nan=allow_nan)
+    was_1d = values.ndim == 1
+    if was_1d:
+        if values.shape[0] != p:
+            raise InputError(f"{name}: a single observation must have length {p}, got {values.shape[0]}")
+        values = values[None, :]
+    elif values.shape[1] != p:
+        raise InputError(f"{name}: expected {p} columns, got {values.shape[1]} (shape {values.shape})")
+    return values, was_1d, index
+
+
+def as_square(
+    a: Any,
+    *,
+    name: str = "a",
+    symmetry_rtol: float | None = None,
+) -> tuple[np.ndarray, list[str] | None]:
+    """A finite, square, symmetric float64 matrix (a copy, never the caller's array).
+
+    The symmetry check is relative to ``max|a|``; the message gives the
+    largest asymmetry and where it is. The returned matrix is exactly
+    symmetric (the lower triangle is mirrored), so later steps see one matrix.
+    """
+    from ._settings import current
+
+    values, names, _ = as_float_array(a, name=name, ndim=(2,))
+    n, m = values.shape
+    if n != m:
+        raise InputError(f"{name}: must be square, got shape {values.shape}")
+    if n == 0:
+        raise InputError(f"{name}: is empty (0 x 0)")
+    rtol = current().symmetry_rtol if symmetry_rtol is None else symmetry_rtol
+    scale = float(np.max(np.abs(values)))
+    asym = np.abs(values - values.T)
+    worst = float(asym.max())
+    if scale > 0 and worst > rtol * scale:
+        i, j = np.unravel_index(int(np.argmax(asym)), asym.shape)
+        lab = (lambda k: repr(names[k])) if names is not None else (lambda k: str(k))
+        raise InputError(
+            f"{name}: is not symmetric: largest asymmetry |a[{lab(i)},{lab(j)}] - a[{lab(j)},{lab(i)}]| = "
+            f"{worst:.3g} ({worst / scale:.2g} of max|a|, tolerance {rtol:g}). "
+            "Symmetrize with (a + a.T) / 2 if the difference is rounding"
+        )
+    sym = np.tril(values) + np.tril(values, -1).T
+    return np.ascontiguousarray(sym), names

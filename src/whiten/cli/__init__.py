@@ -1,0 +1,85 @@
+"""The ``whiten`` command line: one module per command, each thin.
+
+Every command module defines ``add_parser(subparsers)``, which registers its
+sub-parser and sets ``func`` (a callable taking the parsed arguments and
+returning an exit code). Exit codes: 0 success, 1 data or numerical error
+(one line on stderr, no traceback), 2 usage error (argparse).
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+import warnings
+
+from .._version import __version__
+from ..errors import NumericalWarning, WhitenError
+
+# Commands in the order `whiten --help` lists them. A module that is not
+# present yet (a command still being built) is skipped.
+COMMANDS = ["demo", "baseline", "score", "inspect", "regress", "loglik"]
+
+DESCRIPTION = """\
+Gaussian-model statistics without matrix inverses: fit a reference model of
+healthy operation, score new sensor rows against it, fit regressions on
+nearly collinear features, evaluate Gaussian log-likelihoods. Every answer
+says how many digits it can be trusted to.
+"""
+
+EPILOG = """\
+Start with `whiten demo --out demo-output` to see a complete run on bundled
+data. `whiten COMMAND --help` explains each command with an example.
+"""
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="whiten", description=DESCRIPTION, epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"whiten {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in COMMANDS:
+        try:
+            mod = importlib.import_module(f"{__name__}.{name}")
+        except ModuleNotFoundError as exc:
+            if exc.name == f"{__name__}.{name}":
+                continue
+            raise
+        mod.add_parser(sub)
+    return parser
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    tag = "warning" if not issubclass(category, NumericalWarning) else "numerical warning"
+    print(f"whiten: {tag}: {message}", file=sys.stderr)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return 2
+    saved = warnings.showwarning
+    warnings.showwarning = _show_warning
+    try:
+        return int(args.func(args) or 0)
+    except WhitenError as exc:
+        print(f"whiten {args.command}: error: {exc}", file=sys.stderr)
+        return 1
+    except FileNotFoundError as exc:
+        print(f"whiten {args.command}: error: file not found: {exc.filename or exc}", file=sys.stderr)
+        return 1
+    except (PermissionError, IsADirectoryError) as exc:
+        print(f"whiten {args.command}: error: cannot use {exc.filename!r}: {exc.strerror}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        print(f"whiten {args.command}: interrupted", file=sys.stderr)
+        return 130
+    finally:
+        warnings.showwarning = saved
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

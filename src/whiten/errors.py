@@ -1,0 +1,76 @@
+"""Exceptions and warnings raised by whiten.
+
+Failure comes in three tiers:
+
+* misuse or bad data -> :class:`InputError` (a ``ValueError``), whose message
+  names the row, column or file and says what to do;
+* a numerical failure -> :class:`NotPositiveDefiniteError`, saying at which
+  pivot and by how much the matrix failed;
+* a loss of accuracy -> a :class:`NumericalWarning` subclass whose message
+  carries the numbers (condition estimate, digits lost, jitter added).
+
+The same facts are always available as fields on the result object
+(``.health``), so pipelines can check values instead of catching warnings.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "WhitenError",
+    "InputError",
+    "NotPositiveDefiniteError",
+    "ModelFileError",
+    "NumericalWarning",
+    "JitterWarning",
+    "ConditioningWarning",
+    "RankDeficiencyWarning",
+]
+
+
+class WhitenError(Exception):
+    """Base class of every exception whiten raises on purpose."""
+
+
+class InputError(WhitenError, ValueError):
+    """The input cannot be used as given (shape, type, missing values, names).
+
+    The message names the offending row, column or file and the fix.
+    """
+
+
+class NotPositiveDefiniteError(WhitenError, ValueError):
+    """A matrix that must be symmetric positive definite is not.
+
+    Attributes
+    ----------
+    pivot : int or None
+        0-based index of the first pivot that failed, when known.
+    value : float or None
+        The failing pivot (or smallest eigenvalue estimate), relative to the
+        diagonal scale, when known.
+    """
+
+    def __init__(self, message: str, *, pivot: int | None = None, value: float | None = None):
+        super().__init__(message)
+        self.pivot = pivot
+        self.value = value
+
+
+class ModelFileError(InputError):
+    """A model file is missing, truncated, edited, or of an unknown version."""
+
+
+class NumericalWarning(UserWarning):
+    """Base class of whiten's accuracy warnings. The message holds the numbers."""
+
+
+class JitterWarning(NumericalWarning):
+    """Diagonal jitter was added so that a matrix could be factored."""
+
+
+class ConditioningWarning(NumericalWarning):
+    """The condition estimate says many digits of the answer may be lost."""
+
+
+class RankDeficiencyWarning(NumericalWarning):
+    """A matrix or design is (numerically) rank deficient; the message names columns."""

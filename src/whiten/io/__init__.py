@@ -1,0 +1,1 @@
+"""Files in and out: atomic writes, tables read in chunks, model files."""
