@@ -1,0 +1,18 @@
+"""Monitoring: score sensor rows against a baseline, explain alarms, chart them.
+
+:func:`score` is the entry point; :mod:`~whiten.monitor.limits` holds the
+exact laws of the squared distance, :mod:`~whiten.monitor.fdr` batch control,
+:mod:`~whiten.monitor.charts` the pictures (matplotlib, imported lazily).
+"""
+
+from .contributions import chain_terms, drop_terms
+from .fdr import bh_adjust, bh_threshold
+from .limits import PHASES, t2_law, t2_limit, t2_pvalue
+from .score import KINDS, Scorer, column_name, score
+
+__all__ = [
+    "score", "Scorer", "KINDS", "column_name",
+    "PHASES", "t2_law", "t2_limit", "t2_pvalue",
+    "bh_adjust", "bh_threshold",
+    "chain_terms", "drop_terms",
+]
