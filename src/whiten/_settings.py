@@ -53,7 +53,7 @@ class Options:
     indefinite_tol: float = 1e-8
     symmetry_rtol: float = 1e-10
     digits_warn: float = 10.0
-    block_rows: int = 8192
+    block_rows: int = 4096
 
     def validate(self) -> None:
         if not (0 < self.jitter_start <= self.jitter_ceiling):

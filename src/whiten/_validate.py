@@ -153,7 +153,8 @@ def as_float_array(
         raise InputError(
             f"{name}: expected a {' or '.join(f'{d}-D' for d in ndim)} array, got shape {values.shape}"
         )
-    if values.size:
+    # one cheap pass first: the sum is finite exactly when every entry is (barring overflow)
+    if values.size and not np.isfinite(np.add.reduce(values, axis=None)):
         v2 = values.reshape(values.shape[0], -1) if values.ndim >= 2 else values.reshape(1, -1)
         pos = first_nonfinite(v2, allow_nan=allow_nan)
         if pos is not None:

@@ -164,12 +164,12 @@ class Gaussian:
         nobs = np.full(n, p, dtype=np.int64)
         mask = np.isnan(rows) if missing == "marginalize" else None
         if mask is None or not mask.any():
-            d2[:] = self._factor.quad(rows, shift=self._mean) if n else d2
+            d2[:] = self._factor._quad_checked(rows, self._mean) if n else d2
             logpdf[:] = -0.5 * (p * _LOG_2PI + self._factor.logdet() + d2)
             return RowEvaluation(d2, logpdf, nobs, index)
         complete = ~mask.any(axis=1)
         if complete.any():
-            q = self._factor.quad(rows[complete], shift=self._mean)
+            q = self._factor._quad_checked(rows[complete], self._mean)
             d2[complete] = q
             logpdf[complete] = -0.5 * (p * _LOG_2PI + self._factor.logdet() + q)
         partial = np.flatnonzero(~complete)
@@ -184,7 +184,7 @@ class Gaussian:
                 logpdf[which] = np.nan
                 continue
             sub = self._sub_factor(obs)
-            q = sub.quad(rows[np.ix_(which, obs)], shift=self._mean[obs])
+            q = sub._quad_checked(rows[np.ix_(which, obs)], self._mean[obs])
             d2[which] = q
             logpdf[which] = -0.5 * (obs.size * _LOG_2PI + sub.logdet() + q)
         return RowEvaluation(d2, logpdf, nobs, index)

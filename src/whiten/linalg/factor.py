@@ -292,9 +292,12 @@ class Factor:
             one = False
         if arr.ndim != 2 or arr.shape[1] != self.dim:
             raise InputError(f"{name}: expected rows of length {self.dim}, got shape {np.shape(x)}")
-        if not np.isfinite(arr).all():
-            r, c = np.argwhere(~np.isfinite(arr))[0]
-            raise InputError(f"{name}: row {r}, column {c} is {arr[r, c]}; values must be finite")
+        # one cheap pass: the sum is finite exactly when no entry is NaN/inf, barring overflow
+        if arr.size and not np.isfinite(np.add.reduce(arr, axis=None)):
+            bad = ~np.isfinite(arr)
+            if bad.any():
+                r, c = np.argwhere(bad)[0]
+                raise InputError(f"{name}: row {r}, column {c} is {arr[r, c]}; values must be finite")
         return arr, one
 
     def whiten(self, x: Any, *, shift: Any = None) -> np.ndarray:
@@ -332,11 +335,16 @@ class Factor:
         """
         arr, one = self._rows(x, "x")
         sh = None if shift is None else np.asarray(shift, dtype=np.float64).reshape(self.dim)
+        out = self._quad_checked(arr, sh)
+        return float(out[0]) if one else out
+
+    def _quad_checked(self, arr: np.ndarray, shift: np.ndarray | None) -> np.ndarray:
+        """quad on rows already validated (finite, shape (N, p), float64)."""
         out = np.empty(arr.shape[0])
         for a, b in self._row_blocks(arr):
-            z = self._whiten_block(arr[a:b], sh)
+            z = self._whiten_block(arr[a:b], shift)
             out[a:b] = np.einsum("ij,ij->i", z, z)
-        return float(out[0]) if one else out
+        return out
 
     def inv_diag(self) -> np.ndarray:
         """Diagonal of ``(a + jitter I)^{-1}``, a reported quantity (computed once).
