@@ -45,6 +45,14 @@ class Options:
         trustworthy digits.
     block_rows : int
         Rows per block in the blocked many-row paths (cache-sized).
+    gram_digits_max : float
+        The sample covariance is first factored from the (shifted) Gram
+        matrix; when that factor's estimated digits lost exceed this, the
+        factor is recomputed from a tall-skinny QR of the centred data (one
+        more pass). The Gram route's error grows with cond(X)^2, the QR
+        route's with cond(X); the default of 6 keeps about 10 digits on the
+        Gram route. ``inf`` never re-reads; ``fit_baseline(path="tsqr")`` always
+        takes the QR route.
     """
 
     jitter_start: float = 1e-10
@@ -63,6 +71,8 @@ class Options:
             )
         if self.jitter_factor <= 1:
             raise InputError(f"jitter_factor must exceed 1, got {self.jitter_factor:g}")
+        if not self.gram_digits_max >= 0:
+            raise InputError(f"gram_digits_max must be non-negative, got {self.gram_digits_max:g}")
         if self.block_rows < 1:
             raise InputError(f"block_rows must be a positive integer, got {self.block_rows}")
 
