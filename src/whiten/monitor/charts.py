@@ -1,0 +1,236 @@
+"""Charts for monitoring results (matplotlib, Agg backend, imported lazily).
+
+Each function renders into an in-memory PNG and writes it atomically
+(:func:`whiten.io.atomic.write_bytes`), refusing to replace an existing file
+unless ``force=True``. The pyplot state machine is never touched: figures are
+built from :class:`matplotlib.figure.Figure` with an Agg canvas, so charts can
+be drawn from threads and servers without a display.
+
+* :func:`distance_chart` -- squared distance per row on a log scale, the
+  alarm limit, alarms marked, unscored rows ticked along the bottom.
+* :func:`qq_chart` -- ordered squared distances of the reference rows against
+  chi-square(p) quantiles: points along the diagonal support the Gaussian
+  assumption; a bend upwards at the right means heavier tails than Gaussian.
+* :func:`contribution_chart` -- for the worst rows, the ``drop:`` term of each
+  sensor as a bar, with the sensor's plain standardized deviation printed
+  beside it, so a correlation break (large bar, small deviation) stands out.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+
+from ..errors import InputError
+from ..io.atomic import check_writable, write_bytes
+
+__all__ = ["distance_chart", "qq_chart", "contribution_chart"]
+
+# a palette of our own: slate for ordinary rows, amber for the limit, crimson for alarms
+_INK = "#2f3e4e"
+_OK = "#6c8ea4"
+_LIMIT = "#d08c1a"
+_ALARM = "#b3202e"
+_GRID = "#e3e7eb"
+
+
+def _figure(width: float, height: float):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), dpi=110)
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _style(ax) -> None:
+    ax.set_facecolor("white")
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    for side in ("left", "bottom"):
+        ax.spines[side].set_color(_INK)
+    ax.tick_params(colors=_INK, labelsize=8)
+    ax.grid(True, color=_GRID, linewidth=0.7)
+    ax.set_axisbelow(True)
+
+
+def _save(fig, path: str | os.PathLike, force: bool) -> Path:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", facecolor="white")
+    return write_bytes(path, buf.getvalue(), force=force, what="chart")
+
+
+def _need(scores: Any, cols: Sequence[str]) -> None:
+    have = set(getattr(scores, "columns", []))
+    gone = [c for c in cols if c not in have]
+    if gone:
+        raise InputError(f"scores: expected the DataFrame returned by whiten.monitor.score; missing columns {gone}")
+
+
+def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, title: str | None = None,
+                   force: bool = False) -> Path:
+    """Control chart of ``d2`` per row (log scale) with the limit and the alarms.
+
+    Parameters
+    ----------
+    scores : pandas.DataFrame
+        Output of :func:`whiten.monitor.score`.
+    path : path of the PNG to write
+    time : array_like, optional
+        x positions (timestamps or numbers); default: row number.
+    title : str, optional
+    force : bool
+        Replace an existing file.
+
+    Returns
+    -------
+    pathlib.Path
+
+    Raises
+    ------
+    InputError
+        ``scores`` lacks the score columns, or the file exists without ``force``.
+    """
+    _need(scores, ["d2", "limit", "alarm"])
+    check_writable(path, force=force, what="chart")
+    n = len(scores)
+    x = np.arange(n) if time is None else np.asarray(time)
+    if len(x) != n:
+        raise InputError(f"time: expected {n} positions, got {len(x)}")
+    d2 = scores["d2"].to_numpy(dtype=float)
+    lim = scores["limit"].to_numpy(dtype=float)
+    alarm = scores["alarm"].to_numpy(dtype=bool)
+    scored = ~np.isnan(d2)
+    floor = np.nanmin(d2[scored & (d2 > 0)]) if np.any(scored & (d2 > 0)) else 1e-3
+    shown = np.where(d2 > 0, d2, floor)
+
+    fig = _figure(9.0, 3.6)
+    ax = fig.add_subplot(1, 1, 1)
+    _style(ax)
+    ax.set_yscale("log")
+    ok = scored & ~alarm
+    ax.plot(x[scored], shown[scored], color=_OK, linewidth=0.6, alpha=0.7, zorder=1)
+    ax.scatter(x[ok], shown[ok], s=7, color=_OK, zorder=2, label="row")
+    ax.step(x, lim, where="mid", color=_LIMIT, linewidth=1.4, zorder=3, label="alarm limit")
+    if alarm.any():
+        ax.scatter(x[alarm], shown[alarm], s=22, marker="D", color=_ALARM, zorder=4,
+                   label=f"alarm ({int(alarm.sum())})")
+    if (~scored).any():
+        ax.plot(x[~scored], np.full((~scored).sum(), floor), linestyle="none", marker="|",
+                color=_INK, markersize=9, label=f"not scored ({int((~scored).sum())})")
+    alpha = scores.attrs.get("alpha")
+    phase = scores.attrs.get("phase")
+    sub = f"limit at alpha={alpha:g}, phase {phase!r}" if alpha is not None else ""
+    ax.set_title(title or "Squared Mahalanobis distance per row", loc="left", fontsize=10, color=_INK)
+    if sub:
+        ax.text(1.0, 1.02, sub, transform=ax.transAxes, ha="right", fontsize=8, color=_INK)
+    ax.set_xlabel("row" if time is None else "time", fontsize=9, color=_INK)
+    ax.set_ylabel("d2 (log scale)", fontsize=9, color=_INK)
+    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=4)
+    fig.tight_layout()
+    return _save(fig, path, force)
+
+
+def qq_chart(d2: Any, p: int, path: str | os.PathLike, *, title: str | None = None,
+             force: bool = False) -> Path:
+    """Chi-square(p) Q–Q plot of reference squared distances (a check of the Gaussian assumption).
+
+    Parameters
+    ----------
+    d2 : array_like, shape (m,)
+        Squared distances of the reference rows from their own baseline (NaN ignored).
+    p : int
+        Number of sensors.
+    path : path of the PNG to write
+
+    Notes
+    -----
+    Plotting positions ``(i - 0.5) / m``. With parameters estimated from the
+    same rows the points bend slightly below the diagonal at the top (the
+    exact law is the bounded Beta of Tracy, Young & Mason 1992); that curve is
+    drawn dashed when ``m`` is known from the length of ``d2``.
+    """
+    from scipy import stats
+
+    d = np.sort(np.asarray(d2, dtype=float)[~np.isnan(np.asarray(d2, dtype=float))])
+    m = d.size
+    if m < 3:
+        raise InputError(f"d2: need at least 3 distances for a Q–Q plot, got {m}")
+    if int(p) < 1:
+        raise InputError(f"p: expected a positive number of sensors, got {p}")
+    check_writable(path, force=force, what="chart")
+    pos = (np.arange(1, m + 1) - 0.5) / m
+    q = stats.chi2.ppf(pos, p)
+    fig = _figure(5.0, 5.0)
+    ax = fig.add_subplot(1, 1, 1)
+    _style(ax)
+    top = max(q[-1], d[-1]) * 1.05
+    ax.plot([0, top], [0, top], color=_LIMIT, linewidth=1.2, label="chi-square law")
+    if m > p + 1:
+        exact = (m - 1) ** 2 / m * stats.beta.ppf(pos, p / 2, (m - p - 1) / 2)
+        ax.plot(q, exact, color=_INK, linewidth=0.9, linestyle="--", label="exact law, reference rows")
+    ax.scatter(q, d, s=8, color=_OK, edgecolor="none", label=f"reference rows ({m})")
+    ax.set_xlim(0, top)
+    ax.set_ylim(0, top)
+    ax.set_xlabel(f"chi-square({p}) quantile", fontsize=9, color=_INK)
+    ax.set_ylabel("ordered d2", fontsize=9, color=_INK)
+    ax.set_title(title or "Are the reference rows Gaussian?", loc="left", fontsize=10, color=_INK)
+    ax.legend(fontsize=7, frameon=False, loc="upper left")
+    fig.tight_layout()
+    return _save(fig, path, force)
+
+
+def contribution_chart(scores: Any, path: str | os.PathLike, *, rows: int = 4, labels: Any = None,
+                       title: str | None = None, force: bool = False) -> Path:
+    """Bars of the ``drop:`` terms for the ``rows`` rows with the largest d2.
+
+    Each panel is one row; bar length is how much d2 falls when the sensor is
+    left out; the number beside a bar is the sensor's plain standardized
+    deviation (``dev:``). Sensors not observed in a row have no bar.
+
+    Raises
+    ------
+    InputError
+        No per-sensor columns, nothing scored, or the file exists without ``force``.
+    """
+    _need(scores, ["d2"])
+    sensors = [c[len("drop:"):] for c in scores.columns if str(c).startswith("drop:")]
+    if not sensors:
+        raise InputError("scores: no drop:<sensor> columns; pass the DataFrame returned by whiten.monitor.score")
+    d2 = scores["d2"].to_numpy(dtype=float)
+    scored = np.flatnonzero(~np.isnan(d2))
+    if scored.size == 0:
+        raise InputError("scores: no row was scored (every row had all sensors missing)")
+    check_writable(path, force=force, what="chart")
+    k = max(1, min(int(rows), scored.size))
+    worst = scored[np.argsort(-d2[scored], kind="stable")[:k]]
+    fig = _figure(4.2 * k if k < 3 else 3.4 * k, 0.42 * len(sensors) + 1.6)
+    ypos = np.arange(len(sensors))[::-1]
+    for n, i in enumerate(worst):
+        ax = fig.add_subplot(1, k, n + 1)
+        _style(ax)
+        drop = scores[[f"drop:{s}" for s in sensors]].iloc[i].to_numpy(dtype=float)
+        dev = scores[[f"dev:{s}" for s in sensors]].iloc[i].to_numpy(dtype=float) \
+            if f"dev:{sensors[0]}" in scores.columns else np.full(len(sensors), np.nan)
+        vals = np.nan_to_num(drop, nan=0.0)
+        best = int(np.argmax(vals))
+        colors = [_ALARM if j == best else _OK for j in range(len(sensors))]
+        ax.barh(ypos, vals, color=colors, height=0.62)
+        span = vals.max() if vals.max() > 0 else 1.0
+        for j in range(len(sensors)):
+            txt = "n/a" if np.isnan(drop[j]) else (f"{dev[j]:+.1f} sd" if not np.isnan(dev[j]) else "")
+            ax.text(vals[j] + 0.02 * span, ypos[j], txt, va="center", fontsize=7, color=_INK)
+        ax.set_xlim(0, span * 1.35)
+        ax.set_yticks(ypos)
+        ax.set_yticklabels(sensors if n == 0 else [""] * len(sensors), fontsize=8)
+        lab = scores.index[i] if labels is None else np.asarray(labels)[i]
+        ax.set_title(f"row {lab}: d2 = {d2[i]:.3g}", fontsize=9, color=_INK, loc="left")
+        ax.set_xlabel("d2 lost without the sensor", fontsize=8, color=_INK)
+    fig.suptitle(title or "What drives the largest distances (number: plain deviation in sd)",
+                 fontsize=10, color=_INK, x=0.01, ha="left")
+    fig.tight_layout()
+    return _save(fig, path, force)
