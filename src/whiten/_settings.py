@@ -62,6 +62,7 @@ class Options:
     symmetry_rtol: float = 1e-10
     digits_warn: float = 10.0
     block_rows: int = 4096
+    gram_digits_max: float = 6.0
 
     def validate(self) -> None:
         if not (0 < self.jitter_start <= self.jitter_ceiling):
