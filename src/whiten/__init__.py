@@ -31,5 +31,14 @@ __all__ = [
 # --- regression (issue: regression) re-exports go below this line ---
 
 # --- likelihood (issue: likelihoods) re-exports go below this line ---
+from .likelihood import (CalibrationFit, JacobianHealth, LikelihoodSummary, ProfileInterval, calibrate,
+                         gaussian_loglik, loglik_grad_cov, loglik_grad_mean, profile_interval)
+from .linalg.structured import (BlockDiagonalCovariance, DiagonalCovariance, KroneckerCovariance,
+                                LowRankPlusDiagonal, StructuredCovariance, block_diagonal, diagonal, kronecker,
+                                low_rank_plus_diagonal)
+__all__ += ["gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_grad_cov", "calibrate",
+            "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval",
+            "StructuredCovariance", "DiagonalCovariance", "LowRankPlusDiagonal", "BlockDiagonalCovariance",
+            "KroneckerCovariance", "diagonal", "low_rank_plus_diagonal", "block_diagonal", "kronecker"]
 
 # --- baseline / monitoring re-exports go below this line ---

@@ -1,0 +1,8 @@
+"""Gaussian likelihoods for calibration pipelines: log-likelihood, gradients, calibrate()."""
+
+from .calibrate import CalibrationFit, JacobianHealth, ProfileInterval, calibrate, profile_interval
+from .gradients import loglik_grad_cov, loglik_grad_mean
+from .loglik import LikelihoodSummary, gaussian_loglik
+
+__all__ = ["gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_grad_cov", "calibrate",
+           "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval"]
