@@ -22,7 +22,7 @@ import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-AREAS = ["gaussian", "baseline", "regression", "likelihood", "streaming"]
+AREAS = ["gaussian", "baseline", "regression", "likelihood", "streaming", "scaling"]
 
 
 def machine() -> str:
@@ -46,6 +46,7 @@ def main(argv=None) -> int:
     sys.path.insert(0, str(HERE))
     areas = AREAS if not args.only else [a.strip() for a in args.only.split(",")]
     rows = []
+    scale_rows = []
     for area in areas:
         try:
             mod = importlib.import_module(f"bench_{area}")
@@ -57,6 +58,8 @@ def main(argv=None) -> int:
         t0 = time.perf_counter()
         for r in mod.run(quick=args.quick):
             rows.append({"area": area, **r})
+        if hasattr(mod, "scaling"):
+            scale_rows.extend(mod.scaling(quick=args.quick))
         print(f"[{area}: {time.perf_counter() - t0:.1f} s]", file=sys.stderr)
     print(f"machine: {machine()}")
     print(f"command: python benchmarks/run.py {' '.join(argv if argv is not None else sys.argv[1:])}".rstrip())
@@ -67,17 +70,28 @@ def main(argv=None) -> int:
         table.append([r["area"], r["case"], f"{r['ours_s']:.4g}", r.get("peer", ""),
                       "" if r.get("peer_s") is None else f"{r['peer_s']:.4g}",
                       "" if ratio != ratio else f"{ratio:.2f}x", r.get("note", "")])
-    if args.markdown:
+    _print_table(head, table, args.markdown)
+    if scale_rows:
+        print()
+        print("scaling of scoring (Gaussian.logpdf with the factor built once): time vs the N p^2 flop model")
+        sh = ["sweep", "N", "p", "seconds", "N p^2", "ns per N p^2"]
+        st = [[r["sweep"], str(r["n"]), str(r["p"]), f"{r['seconds']:.4g}", f"{r['model_flops']:.3g}",
+               f"{r['ns_per_model_flop']:.3f}"] for r in scale_rows]
+        _print_table(sh, st, args.markdown)
+    return 0
+
+
+def _print_table(head, table, markdown):
+    if markdown:
         print("| " + " | ".join(head) + " |")
         print("|" + "---|" * len(head))
         for t in table:
             print("| " + " | ".join(t) + " |")
-    else:
-        widths = [max(len(h), *(len(t[i]) for t in table)) if table else len(h) for i, h in enumerate(head)]
-        print("  ".join(h.ljust(w) for h, w in zip(head, widths)))
-        for t in table:
-            print("  ".join(c.ljust(w) for c, w in zip(t, widths)))
-    return 0
+        return
+    widths = [max(len(h), *(len(t[i]) for t in table)) if table else len(h) for i, h in enumerate(head)]
+    print("  ".join(h.ljust(w) for h, w in zip(head, widths)))
+    for t in table:
+        print("  ".join(c.ljust(w) for c, w in zip(t, widths)))
 
 
 if __name__ == "__main__":
