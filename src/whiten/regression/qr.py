@@ -1,0 +1,163 @@
+"""QR building blocks for least squares: equilibration, blocked (tall-skinny) QR, rank.
+
+Nothing here forms a Gram matrix or an inverse. The R factors are those of the
+data (Householder, LAPACK ``dgeqrf``), so condition numbers are never squared.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Callable, Iterator
+
+import numpy as np
+from scipy.linalg import lapack, solve_triangular
+
+__all__ = [
+    "pow2_column_scale",
+    "householder_thin",
+    "tsqr_r",
+    "sequential_dependence",
+    "tri_solve",
+    "tri_rcond",
+]
+
+_EPS = float(np.finfo(np.float64).eps)
+
+
+def pow2_column_scale(norms: np.ndarray) -> np.ndarray:
+    """Powers of two ``s_j`` with ``s_j * norms_j`` in [1/sqrt 2, sqrt 2] (1 for a zero column).
+
+    Column equilibration by powers of two is exact in binary arithmetic: the
+    scaled design holds the same digits as the user's, and the coefficients map
+    back without rounding. Householder QR is column-scaling invariant in exact
+    arithmetic, but the scaled problem makes the rank tolerance and the
+    condition number meaningful (van der Sluis, 1969).
+    """
+    safe = np.where((norms > 0) & np.isfinite(norms), norms, 1.0)
+    return np.exp2(-np.round(np.log2(safe)))
+
+
+def householder_thin(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Thin Householder QR ``a = q @ r`` (q: (n, p) orthonormal columns, r: (p, p) upper).
+
+    Requires n >= p. ``a`` is not modified. Cost 4 n p^2 flops (factor plus
+    forming the thin Q).
+    """
+    n, p = a.shape
+    qr, tau, _, info = lapack.dgeqrf(np.asfortranarray(a), overwrite_a=0)
+    if info != 0:  # pragma: no cover - invalid arguments only
+        raise RuntimeError(f"dgeqrf info={info}")
+    r = np.triu(qr[:p, :p])
+    q, _, info = lapack.dorgqr(qr[:, :p], tau, overwrite_a=1)
+    if info != 0:  # pragma: no cover
+        raise RuntimeError(f"dorgqr info={info}")
+    return q, r
+
+
+def _r_of(block: np.ndarray) -> np.ndarray:
+    """Upper-triangular (or trapezoidal) R of a block, shape (min(m, p), p)."""
+    m, p = block.shape
+    qr, _, _, info = lapack.dgeqrf(block, overwrite_a=1)
+    if info != 0:  # pragma: no cover
+        raise RuntimeError(f"dgeqrf info={info}")
+    k = min(m, p)
+    return np.triu(qr[:k, :])
+
+
+def tsqr_r(blocks: Iterator[np.ndarray], p: int, *, fan_in: int = 32) -> np.ndarray:
+    """R factor (p x p) of a tall matrix given as an iterator of row blocks.
+
+    Each block is reduced to its own R (Householder, BLAS-3), and the small R's
+    are stacked and reduced again whenever ``fan_in`` of them have accumulated:
+    the tall-skinny QR of Demmel, Grigori, Hoemmen & Langou (2012). Memory is
+    one block plus ``fan_in`` p x p triangles; the result equals (up to the
+    signs of its rows) the R of a Householder QR of the whole matrix, with the
+    same backward stability. Blocks may be overwritten.
+    """
+    pending: list[np.ndarray] = []
+    for blk in blocks:
+        if blk.shape[0] == 0:
+            continue
+        pending.append(_r_of(np.asfortranarray(blk)))
+        if len(pending) >= fan_in:
+            pending = [_r_of(np.asfortranarray(np.vstack(pending)))]
+    if not pending:
+        return np.zeros((p, p))
+    r = _r_of(np.asfortranarray(np.vstack(pending))) if len(pending) > 1 else pending[0]
+    if r.shape[0] < p:  # fewer rows than columns overall
+        r = np.vstack([r, np.zeros((p - r.shape[0], p))])
+    # fix signs so that diag(R) >= 0 (makes R unique and comparable across paths)
+    sgn = np.where(np.diag(r) < 0, -1.0, 1.0)
+    return r * sgn[:, None]
+
+
+def tri_solve(r: np.ndarray, b: np.ndarray, *, trans: bool = False) -> np.ndarray:
+    """Solve ``r x = b`` (or ``r.T x = b``) for upper-triangular ``r``."""
+    return solve_triangular(r, b, lower=False, trans=1 if trans else 0, check_finite=False)
+
+
+def tri_rcond(r: np.ndarray) -> float:
+    """LAPACK ``dtrcon`` estimate of 1 / cond_1(r) for upper-triangular r (0 when singular)."""
+    if r.size == 0:
+        return 1.0
+    if not np.all(np.isfinite(r)) or np.any(np.diag(r) == 0):
+        return 0.0
+    rc, info = lapack.dtrcon(np.asfortranarray(r), norm="1", uplo="U", diag="N")
+    return float(rc) if info == 0 else 0.0
+
+
+def sequential_dependence(r: np.ndarray, tol: float) -> list[int]:
+    """Columns that are (numerically) linear combinations of the columns before them.
+
+    For a QR of the design in the user's column order, ``|r_jj|`` is the
+    distance of column j from the span of columns 0..j-1. Column j is set
+    aside when that distance is at most ``tol * max_i |r_ii|``. Because an
+    aside column lies in the span of the earlier ones, dropping it leaves the
+    later distances unchanged, so one QR decides every column. The rule is
+    deterministic: of two dependent columns, the *later* one in the user's
+    order is set aside.
+    """
+    d = np.abs(np.diag(r))
+    top = float(d.max()) if d.size else 0.0
+    if top == 0:
+        return list(range(r.shape[1]))
+    return [j for j in range(r.shape[1]) if d[j] <= tol * top]
+
+
+def greedy_rank_drop(r: np.ndarray, kept: list[int], tol: float) -> list[int]:
+    """Extra columns to set aside when the kept columns are still numerically rank deficient.
+
+    ``r`` is the R of the kept columns (in order). The numerical rank comes from
+    a pivoted QR of ``r`` (Businger & Golub, 1965) with the same relative
+    tolerance. Columns are then tried latest-first in the user's order: a
+    column is set aside if the others keep that rank. Deterministic (order,
+    not pivoting, decides), cost O(p^4) on the small triangle only.
+    """
+    import scipy.linalg as sl
+
+    def rank_of(m: np.ndarray) -> int:
+        if m.shape[1] == 0:
+            return 0
+        rr = sl.qr(m, mode="r", pivoting=True)[0]
+        d = np.abs(np.diag(rr))
+        return int(np.sum(d > tol * d[0])) if d.size and d[0] > 0 else 0
+
+    target = rank_of(r)
+    cols = list(range(len(kept)))
+    dropped: list[int] = []
+    for j in reversed(range(len(kept))):
+        if len(cols) <= target:
+            break
+        trial = [c for c in cols if c != j]
+        if rank_of(r[:, trial]) == target:
+            cols = trial
+            dropped.append(kept[j])
+    return sorted(dropped)
+
+
+def condition_2(r: np.ndarray) -> float:
+    """2-norm condition number of an upper-triangular r from its singular values."""
+    if r.size == 0:
+        return 1.0
+    s = np.linalg.svd(r, compute_uv=False)
+    return math.inf if s[-1] == 0 else float(s[0] / s[-1])

@@ -1,0 +1,222 @@
+"""Ridge regression (Hoerl & Kennard, 1970) with the intercept never penalised.
+
+Minimises ``||b - w1 b0 - A b||^2 + lambda ||D b||^2`` in the whitened model,
+where ``w1`` is the (whitened) constant column and ``D = I`` (penalty on the
+predictors as given) or ``D = diag(sd_j)`` with ``standardize=True`` (penalty on
+the predictors scaled to unit standard deviation, so ``lambda`` is unit-free).
+
+* A fixed ``lambda`` is solved as the augmented least-squares problem
+  ``[A_c; sqrt(lambda) D] b ~ [b_c; 0]`` (``A_c``, ``b_c``: the predictors and
+  response with the constant projected out) by the same Householder QR and
+  refinement as an unpenalised fit.
+* ``"gcv"`` (generalised cross-validation, Golub, Heath & Wahba, 1979) and
+  ``"loocv"`` (leave-one-out prediction error, through the exact identity
+  ``e_(i) = e_i / (1 - h_ii)`` for penalised least squares) are evaluated on a
+  log grid from the SVD ``A_c D^{-1} = U S V^T`` (obtained as the SVD of the R
+  of a QR, so no Gram matrix is formed): for each grid point
+  ``RSS = sum_k (lambda / (s_k^2 + lambda))^2 c_k^2 + ||b_c - U c||^2`` with
+  ``c = U^T b_c``, ``h_ii = w1_i^2 / ||w1||^2 + sum_k u_ik^2 s_k^2 / (s_k^2 + lambda)``;
+  O(n k) per grid point. The chosen ``lambda`` is then refitted by the fixed route.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import stats
+
+from .._warn import warn
+from ..errors import InputError, NumericalWarning
+from . import linear as _lin
+from .diagnostics import collinearity_report, vif_from_r
+from .qr import condition_2, householder_thin, pow2_column_scale, sequential_dependence
+
+__all__ = ["fit_ridge", "CRITERIA"]
+
+_EPS = float(np.finfo(np.float64).eps)
+CRITERIA = ("gcv", "loocv")
+
+
+def _project_out(v: np.ndarray, w1: np.ndarray) -> np.ndarray:
+    """v minus its projection on w1, twice (re-orthogonalisation keeps it at eps level)."""
+    ww = float(w1 @ w1)
+    out = v - np.outer(w1, w1 @ v) / ww if v.ndim == 2 else v - w1 * (float(w1 @ v) / ww)
+    if v.ndim == 2:
+        out = out - np.outer(w1, w1 @ out) / ww
+    else:
+        out = out - w1 * (float(w1 @ out) / ww)
+    return out
+
+
+def _parse(ridge) -> tuple[str, float]:
+    if isinstance(ridge, str):
+        key = ridge.strip().lower()
+        if key in CRITERIA:
+            return key, math.nan
+        try:
+            ridge = float(key)
+        except ValueError:
+            raise InputError(f"ridge: expected a penalty >= 0 or one of {list(CRITERIA)}, got {ridge!r}") from None
+    try:
+        lam = float(ridge)
+    except (TypeError, ValueError):
+        raise InputError(f"ridge: expected a penalty >= 0 or one of {list(CRITERIA)}, got {ridge!r}") from None
+    if not (lam >= 0 and math.isfinite(lam)):
+        raise InputError(f"ridge: the penalty must be a finite number >= 0, got {ridge!r}")
+    return "fixed", lam
+
+
+def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
+    """Ridge fit of a validated design (called by :func:`whiten.fit_linear` with ``ridge=...``).
+
+    Returns
+    -------
+    LinearFit
+        With ``.ridge`` (a :class:`RidgeInfo`) filled in. ``stderr`` are the
+        standard deviations of the (biased) ridge estimates at the chosen penalty,
+        ``sigma * sqrt(diag(V S^2 (S^2 + lambda)^-2 V^T))`` (inverse-free, from
+        the SVD); ``tvalues``/``pvalues`` are NaN because the estimates are biased
+        and the usual t reference does not hold.
+
+    Raises
+    ------
+    InputError
+        Bad penalty, a grid that is not positive, no predictors to penalise.
+    """
+    kind, lam = _parse(ridge)
+    if not design.names:
+        raise InputError("ridge: there are no predictors to penalise")
+    a, b = design.whitened()
+    n = design.n
+    icpt = design.intercept
+    xw = a[:, 1:] if icpt else a
+    w1 = a[:, 0] if icpt else None
+    xc = _project_out(xw, w1) if icpt else xw.copy()
+    bc = _project_out(b, w1) if icpt else b.copy()
+    k = xc.shape[1]
+    if standardize:
+        d = np.sqrt(np.einsum("ij,ij->j", xc, xc) / n)
+        bad = np.flatnonzero(d == 0)
+        if bad.size:
+            raise InputError(f"ridge: predictor {design.names[bad[0]]!r} is constant; it cannot be standardized")
+    else:
+        d = np.ones(k)
+    xs = xc / d[None, :]
+    # SVD through the R of a QR (Golub & Kahan route, no Gram matrix)
+    qx, rx = householder_thin(xs) if n >= k else (None, None)
+    if qx is None:
+        u, sv, vt = np.linalg.svd(xs, full_matrices=False)
+    else:
+        ur, sv, vt = np.linalg.svd(rx)
+        u = qx @ ur
+    c = u.T @ bc
+    perp = bc - u @ c
+    rss_perp = float(perp @ perp)
+    ww = float(w1 @ w1) if icpt else 1.0
+    lev0 = (w1 ** 2) / ww if icpt else np.zeros(n)
+    s2 = sv ** 2
+    info_grid = info_scores = info_paths = None
+    at_edge = False
+    if kind != "fixed":
+        if grid is None:
+            top = float(s2[0]) if s2.size and s2[0] > 0 else 1.0
+            grid_arr = top * np.logspace(-8, 2, 61)
+        else:
+            grid_arr = np.asarray(grid, dtype=float).ravel()
+            if grid_arr.size < 2 or not np.all(np.isfinite(grid_arr)) or np.any(grid_arr <= 0):
+                raise InputError("ridge_grid: give at least two finite penalties > 0")
+            grid_arr = np.sort(grid_arr)
+        scores = np.empty(grid_arr.size)
+        paths = np.empty((grid_arr.size, k))
+        for i, lm in enumerate(grid_arr):
+            shrink = s2 / (s2 + lm)
+            e = bc - u @ (shrink * c)
+            edf = float(shrink.sum()) + int(icpt)
+            if kind == "gcv":
+                rss = float(np.sum(((lm / (s2 + lm)) * c) ** 2)) + rss_perp
+                scores[i] = n * rss / (n - edf) ** 2 if n > edf else math.inf
+            else:
+                h = lev0 + np.einsum("ij,j->i", u ** 2, shrink)
+                scores[i] = float(np.mean((e / (1.0 - h)) ** 2))
+            paths[i] = (vt.T @ (sv / (s2 + lm) * c)) / d
+        best = int(np.argmin(scores))
+        lam = float(grid_arr[best])
+        at_edge = best in (0, grid_arr.size - 1)
+        if at_edge:
+            warn(NumericalWarning,
+                 f"ridge: the {kind} criterion is smallest at the {'lower' if best == 0 else 'upper'} end of the "
+                 f"grid (penalty {lam:.3g}); widen ridge_grid to be sure it is a minimum")
+        info_grid, info_scores, info_paths = grid_arr, scores, paths
+    # fixed penalty: augmented least squares, Householder QR + refinement
+    aug = np.vstack([xs, math.sqrt(lam) * np.eye(k)]) if lam > 0 else xs
+    baug = np.concatenate([bc, np.zeros(k)]) if lam > 0 else bc
+    norms = np.sqrt(np.einsum("ij,ij->j", aug, aug))
+    sc = pow2_column_scale(norms)
+    augs = aug * sc[None, :]
+    q, r = householder_thin(augs)
+    if sequential_dependence(r, 10 * max(n, k) * _EPS):
+        raise InputError("ridge: with penalty 0 the predictors are rank deficient; use a positive penalty")
+    xsol, res, steps, conv, corr = _lin._refine_dense(augs, baug, q, r, "compensated", _lin.MAX_REFINE)
+    beta_s = xsol * sc             # coefficients of xs
+    beta = beta_s / d              # original units
+    e_w = res[:n]                  # whitened residuals of the centred problem
+    rss = float(e_w @ e_w)
+    shrink = s2 / (s2 + lam) if lam > 0 else np.ones_like(s2)
+    edf = float(shrink.sum()) + int(icpt)
+    dof = n - edf
+    sigma = math.sqrt(rss / dof) if dof > 0 else math.nan
+    fac = sv / (s2 + lam) if lam > 0 else 1.0 / sv
+    var_pen = np.einsum("kj,k->j", (vt * fac[:, None]) ** 2, np.ones_like(sv))  # inverse-ok: reported variances only
+    se_pred = sigma * np.sqrt(var_pen) / d
+    if icpt:
+        mx = (w1 @ xw) / ww                      # constant-column coefficients of each predictor
+        b0 = float(w1 @ (b - xw @ beta)) / ww
+        proj = vt @ (mx / d)
+        var_b0 = 1.0 / ww + float(np.sum((proj * fac) ** 2))  # inverse-ok: reported variance only
+        coef = np.concatenate([[b0], beta])
+        stderr = np.concatenate([[sigma * math.sqrt(var_b0)], se_pred])
+    else:
+        coef, stderr = beta, se_pred
+    tss = float(bc @ bc)
+    r2 = 1 - rss / tss if tss > 0 else math.nan
+    adj = 1 - (1 - r2) * (n - int(icpt)) / dof if dof > 0 else math.nan
+    ll = _lin._loglik(design, rss, n)
+    # unpenalised diagnostics of the design
+    s_full = pow2_column_scale(np.sqrt(np.einsum("ij,ij->j", a, a)))
+    _, r_full = householder_thin(a * s_full[None, :])
+    tol = 10 * max(n, design.p) * _EPS
+    coll = collinearity_report(r_full, design.all_names, exact_tol=tol)
+    vif = np.full(k, np.nan)
+    if icpt and not sequential_dependence(r_full, tol):
+        vif = vif_from_r(r_full, k) if k > 1 else np.ones(1)
+    cond_aug = _lin._scaled_condition(r)
+    bound = _EPS * cond_aug * (1 + cond_aug * math.sqrt(rss) / max(float(np.linalg.norm(bc - e_w)), 1e-300))
+    digits = float(min(15.9, max(0.0, -math.log10(bound)))) if bound > 0 else 15.9
+    lc = corr if math.isfinite(corr) else 1.0
+    solved = 15.6 if conv and lc <= 2 * _EPS else float(min(15.6, max(0.0, -math.log10(max(lc, _EPS)))))
+    health = _lin.FitHealth(
+        path="ridge-augmented-householder", condition_number=float(coll.condition_indices[-1]),
+        condition_number_raw=condition_2(r_full / s_full[None, :]), condition_number_fitted=cond_aug,
+        error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=steps,
+        refinement_converged=bool(conv), last_correction=corr, residual_arithmetic="compensated",
+        rank=design.p, columns=design.p, rank_tol=tol, set_aside=(), dependencies=(),
+        notes=(f"penalty {lam:.6g} on {'standardized ' if standardize else ''}predictors; intercept unpenalised",))
+    info = _lin.RidgeInfo(penalty=lam, criterion=kind, standardized=bool(standardize), effective_dof=edf,
+                          grid=info_grid, scores=info_scores, paths=info_paths, at_edge=at_edge)
+    fitted = _lin._fitted(design, list(range(design.p)), coef)
+    nan = np.full(coef.shape, np.nan)
+    dof_model = edf - int(icpt)
+    ess = tss - rss
+    fstat = (ess / dof_model) / (rss / dof) if dof_model > 0 and dof > 0 and rss > 0 else math.nan
+    fp = float(stats.f.sf(fstat, dof_model, dof)) if math.isfinite(fstat) else math.nan
+    return _lin.LinearFit(
+        names=tuple(design.all_names), coef=_lin._ro(coef), stderr=_lin._ro(stderr), tvalues=_lin._ro(nan),
+        pvalues=_lin._ro(nan.copy()), residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=fstat,
+        f_pvalue=fp, loglik=ll, aic=-2 * ll + 2 * edf, bic=-2 * ll + math.log(n) * edf, nobs=n, dof=dof,
+        dof_model=dof_model, rank=design.p, vif=_lin._ro(vif), collinearity=coll, fitted=_lin._ro(fitted),
+        residuals=_lin._ro(design.y - fitted), health=health, intercept=icpt,
+        predictor_names=tuple(design.names),
+        weighted="gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none"),
+        ridge=info, _r=None, _scale=None, _fit_cols=tuple(range(design.p)), _q=None, _wresid=e_w,
+        _design=design)
