@@ -29,6 +29,8 @@ __all__ = [
 ]
 
 # --- regression (issue: regression) re-exports go below this line ---
+from .regression import CollinearityReport, FitHealth, InfluenceReport, LinearFit, RidgeInfo, fit_linear, influence
+__all__ += ["fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport"]
 
 # --- likelihood (issue: likelihoods) re-exports go below this line ---
 from .likelihood import (CalibrationFit, JacobianHealth, LikelihoodSummary, ProfileInterval, calibrate,
