@@ -174,14 +174,17 @@ def t2_limit(alpha: float, p: Any, m: int | None = None, *, phase: str = "new") 
     out = np.full(pp.shape, np.nan)
     ok = pp > 0
     if ok.any():
-        k = pp[ok].astype(np.int64)
-        check_phase(phase, int(k.max()), m)
+        # one quantile per distinct number of sensors (there are at most p), not per row
+        uniq, inv = np.unique(pp[ok].astype(np.int64), return_inverse=True)
+        check_phase(phase, int(uniq.max()), m)
+        k = uniq.astype(np.float64)
         if phase == "new":
-            out[ok] = k * (m + 1.0) * (m - 1.0) / (m * (m - k)) * stats.f.isf(alpha, k, m - k)
+            lim = k * (m + 1.0) * (m - 1.0) / (m * (m - k)) * stats.f.isf(alpha, k, m - k)
         elif phase == "reference":
-            out[ok] = (m - 1.0) ** 2 / m * stats.beta.isf(alpha, k / 2.0, (m - k - 1) / 2.0)
+            lim = (m - 1.0) ** 2 / m * stats.beta.isf(alpha, k / 2.0, (m - k - 1) / 2.0)
         else:
-            out[ok] = stats.chi2.isf(alpha, k)
+            lim = stats.chi2.isf(alpha, k)
+        out[ok] = np.atleast_1d(lim)[np.asarray(inv).reshape(-1)]
     return float(out[0]) if scalar else out
 
 
