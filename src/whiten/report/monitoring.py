@@ -1,0 +1,263 @@
+"""Report for a monitoring run: alarms, the worst rows and their sensors, the control chart."""
+
+from __future__ import annotations
+
+import math
+import tempfile
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .._settings import current
+from ..errors import InputError
+from .document import Report, format_number
+from .provenance import Provenance
+
+__all__ = ["monitoring_report", "worst_rows"]
+
+_NEED = ("d2", "p_value", "limit", "alarm")
+
+
+def _check_scores(scores: Any) -> None:
+    cols = set(getattr(scores, "columns", []))
+    gone = [c for c in _NEED if c not in cols]
+    if gone or not hasattr(scores, "attrs"):
+        raise InputError(f"scores: expected the DataFrame returned by whiten.monitor.score; missing columns {gone}")
+    if len(scores) == 0:
+        raise InputError("scores: no rows; there is nothing to report")
+
+
+def worst_rows(scores: Any, k: int = 5, top: int = 3):
+    """The ``k`` rows with the smallest p-value (ties: larger d2 first), with their top sensors.
+
+    Parameters
+    ----------
+    scores : pandas.DataFrame
+        Output of :func:`whiten.monitor.score`.
+    k : int
+        Rows to return (fewer when fewer were scored).
+    top : int
+        Sensors named per row, by the ``drop:`` term (d2 lost without the sensor).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by the row labels of ``scores``; columns ``d2``, ``limit``,
+        ``p_value``, ``alarm``, ``top sensors`` (text) and ``note``.
+
+    Raises
+    ------
+    InputError
+        ``scores`` lacks the score columns.
+    """
+    import pandas as pd
+
+    _check_scores(scores)
+    d2 = scores["d2"].to_numpy(dtype=float)
+    pv = scores["p_value"].to_numpy(dtype=float)
+    scored = np.flatnonzero(~np.isnan(pv))
+    order = scored[np.lexsort((-d2[scored], pv[scored]))][: max(0, int(k))]
+    sensors = [str(c)[5:] for c in scores.columns if str(c).startswith("drop:")]
+    drops = scores[[f"drop:{s}" for s in sensors]].to_numpy(dtype=float) if sensors else None
+    tops = []
+    for i in order:
+        if drops is None:
+            tops.append("")
+            continue
+        row = np.nan_to_num(drops[i], nan=-np.inf)
+        best = [j for j in np.argsort(-row, kind="stable")[: int(top)] if np.isfinite(row[j])]
+        tops.append(", ".join(f"{sensors[j]} ({format_number(drops[i, j], 3)})" for j in best))
+    note = scores["note"].to_numpy(dtype=object)[order] if "note" in scores.columns else [""] * len(order)
+    out = pd.DataFrame({
+        "d2": d2[order], "limit": scores["limit"].to_numpy(dtype=float)[order], "p_value": pv[order],
+        "alarm": scores["alarm"].to_numpy(dtype=bool)[order], "top sensors": tops, "note": list(note),
+    }, index=pd.Index(scores.index[order], name=scores.index.name or "row"))
+    return out
+
+
+def _rows(k: int) -> str:
+    return f"{k} row" + ("" if k == 1 else "s")
+
+
+def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
+    basis = attrs.get("limit_basis")
+    if basis:
+        rep.health("Alarm limit", f"Exact law used for p-values and limits: {basis}.",
+                   "note" if "approximate" in str(basis) else "good")
+    h = getattr(baseline, "health", None) if baseline is not None else None
+    if h is None and baseline is not None and hasattr(baseline, "factor"):
+        h = baseline.factor.health
+    digits_warn = current().digits_warn
+    if h is not None and hasattr(h, "rcond_scaled"):
+        lost = float(h.digits_lost)
+        cond = math.inf if h.rcond_scaled <= 0 else 1.0 / float(h.rcond_scaled)
+        tone = "alert" if lost > digits_warn else ("note" if lost > 6 else "good")
+        rep.health("Condition", f"The baseline covariance, scaled to unit diagonal, has a condition estimate "
+                   f"of {format_number(cond, 3)} (LAPACK dpocon), so a distance may lose about {lost:.1f} of "
+                   f"about 16 significant digits; about {float(h.digits_trusted):.1f} digits can be trusted.",
+                   tone)
+        jit = float(getattr(h, "jitter", 0.0))
+        if jit > 0:
+            rep.health("Jitter", f"{format_number(jit, 3)} was added to the diagonal of the covariance "
+                       f"({float(h.jitter_relative):.1e} of its mean variance) so that it could be factored; "
+                       "the distances describe that repaired matrix.", "alert")
+        else:
+            rep.health("Jitter", "None: the covariance factored as estimated, without repair.", "good")
+        route = getattr(h, "path", None) or getattr(h, "method", None)
+        est = attrs.get("estimator") or getattr(baseline, "estimator", None)
+        m = attrs.get("reference_rows")
+        words = f"{est or 'unstated'} estimate" + (f" from {m} reference rows" if m else "")
+        if route:
+            words += f"; numerical route: {route}"
+        gram = getattr(h, "gram_digits_lost", None)
+        if gram is not None and route == "tsqr":
+            words += (f" (the Gram route would have lost {float(gram):.1f} digits, so the factor was "
+                      "recomputed from a QR of the centred data)")
+        rep.health("Estimator", words + ".", "good")
+    else:
+        dt = attrs.get("digits_trusted")
+        if dt is not None:
+            rep.health("Digits", f"About {float(dt):.1f} significant digits of each distance can be trusted "
+                       "(from the baseline's condition estimate).", "good" if float(dt) >= 8 else "note")
+        jit = attrs.get("jitter")
+        if jit:
+            rep.health("Jitter", f"{format_number(jit, 3)} was added to the covariance diagonal before "
+                       "factoring; the distances describe that repaired matrix.", "alert")
+
+
+def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenance | None = None,
+                      title: str | None = None, worst: int = 5, time: Any = None,
+                      charts: bool = True) -> Report:
+    """Build the report of a monitoring run from the scores (and, optionally, the baseline).
+
+    Parameters
+    ----------
+    scores : pandas.DataFrame
+        Output of :func:`whiten.monitor.score` (or ``Baseline.score``); its
+        ``attrs`` carry alpha, the phase and the law used.
+    baseline : Baseline or Gaussian, optional
+        Adds the condition, jitter and estimator route to the trust block.
+    provenance : Provenance, optional
+        What was run (see :meth:`Provenance.collect`).
+    title : str, optional
+    worst : int
+        Rows listed (and charted) in "worst rows".
+    time : array_like, optional
+        x positions of the control chart (default: row number).
+    charts : bool
+        Draw the control chart and the contribution bars (matplotlib).
+
+    Returns
+    -------
+    Report
+        Call ``.write(path)`` or ``.to_html()``.
+
+    Raises
+    ------
+    InputError
+        ``scores`` is not a score table, or has no rows.
+
+    Notes
+    -----
+    Key figures: the number of alarms (``alarm`` is the per-row test at
+    ``alpha``), how many a healthy batch would give by chance
+    (``alpha`` times the rows scored), the worst row, the Benjamini-Hochberg
+    flags when ``fdr`` was used, and the rows not fully scored. Cost: one sort
+    of the p-values plus the charts (linear in the rows).
+
+    Examples
+    --------
+    >>> import numpy as np, whiten, whiten.monitor
+    >>> from whiten.report import monitoring_report
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.6], [0.6, 1.0]], names=["inlet", "outlet"])
+    >>> s = whiten.monitor.score(g, np.array([[0.1, 0.2], [4.0, -4.0]]), phase="known")
+    >>> rep = monitoring_report(s, g, charts=False)
+    >>> [f.value for f in rep.figures if f.key == "alarms"] == [int(s.alarm.sum())]
+    True
+    """
+    _check_scores(scores)
+    attrs = dict(scores.attrs)
+    d2 = scores["d2"].to_numpy(dtype=float)
+    alarm = scores["alarm"].to_numpy(dtype=bool)
+    scored = ~np.isnan(d2)
+    n, n_scored, n_alarm = len(scores), int(scored.sum()), int(alarm.sum())
+    alpha = attrs.get("alpha")
+    sensors = attrs.get("sensors") or [str(c)[5:] for c in scores.columns if str(c).startswith("drop:")]
+    p = len(sensors)
+    nobs = scores["n_observed"].to_numpy() if "n_observed" in scores.columns else np.full(n, p)
+    n_none = int(np.sum(nobs == 0))
+    n_partial = int(np.sum((nobs > 0) & (nobs < p))) if p else 0
+
+    rep = Report(title or "Sensor rows screened against a baseline", job="monitoring",
+                 lede=(f"{n} rows scored on {p} sensors"
+                       + (f" at a false-alarm probability of {alpha:g} per row" if alpha is not None else "")
+                       + (f", phase {attrs.get('phase')!r}" if attrs.get("phase") else "") + "."),
+                 provenance=provenance)
+    rep.key_figure("Alarms", n_alarm, note=f"of {n_scored} rows scored", key="alarms",
+                   tone="alert" if n_alarm else "good")
+    if alpha is not None:
+        rep.key_figure("Expected by chance", float(alpha) * n_scored, digits=3, key="expected",
+                       note="alarms a batch of healthy rows would give")
+    if "alarm_fdr" in scores.columns:
+        n_fdr = int(scores["alarm_fdr"].to_numpy(dtype=bool).sum())
+        rep.key_figure("Flagged by false-discovery control", n_fdr, key="fdr-flags",
+                       note=f"Benjamini-Hochberg at q = {attrs.get('fdr')}", tone="alert" if n_fdr else "good")
+    table = worst_rows(scores, worst) if n_scored else None
+    if table is not None and len(table):
+        lab = table.index[0]
+        rep.key_figure("Largest distance", float(table["d2"].iloc[0]), digits=4, key="worst-d2",
+                       note=f"row {lab}; limit {format_number(table['limit'].iloc[0], 4)}",
+                       tone="alert" if bool(table["alarm"].iloc[0]) else "plain")
+    if n_partial or n_none:
+        rep.key_figure("Rows not fully scored", n_partial + n_none, key="partial", tone="note",
+                       note=f"{n_partial} on fewer sensors, {n_none} not at all")
+
+    _health_words(rep, baseline, attrs)
+    if n_partial or n_none:
+        rep.health("Missing readings", f"{_rows(n_partial)} scored on the sensors present (the marginal "
+                   f"model of those sensors, limits with the number observed); {_rows(n_none)} with no sensor, "
+                   "not scored. No row was dropped.", "note")
+
+    if table is not None and len(table):
+        sec = rep.section("Worst rows", key="worst")
+        sec.paragraph("The rows least like the baseline, smallest p-value first. The sensors named are those "
+                      "whose removal lowers the squared distance most (number in brackets: d2 lost without "
+                      "the sensor); a large loss from a sensor whose own reading is unremarkable points at a "
+                      "broken relation between sensors rather than one odd reading.")
+        sec.table(table, f"The {len(table)} rows with the smallest p-values", key="worst-rows",
+                  formats={"d2": ".5g", "limit": ".4g", "p_value": ".3g"})
+    if alarm.any() and "top_contributor" in scores.columns:
+        lead = scores.loc[alarm, "top_contributor"].astype(str).value_counts()
+        import pandas as pd
+
+        frame = pd.DataFrame({"alarms it leads": lead.to_numpy()},
+                             index=pd.Index(lead.index, name="sensor"))
+        rep.section("Which sensors lead the alarms", key="leaders").table(
+            frame, "Alarms counted by the sensor with the largest contribution", key="leaders")
+
+    if charts and n_scored:
+        from ..monitor.charts import contribution_chart, distance_chart
+
+        with tempfile.TemporaryDirectory(prefix="whiten-report-") as tmp:
+            chart = distance_chart(scores, Path(tmp) / "d2.png", time=time)
+            above = f"{n_alarm} rows are above it" if n_alarm else "no row is above it"
+            sec = rep.section("Control chart", key="chart")
+            sec.figure(chart, alt=(f"Control chart of the squared Mahalanobis distance of {n} rows on a log "
+                                   f"scale with the alarm limit as a line; {above}; the largest distance is "
+                                   f"{format_number(np.nanmax(d2), 4)}."),
+                       caption=f"Squared distance per row and the alarm limit ({attrs.get('limit_basis', '')}).",
+                       key="control-chart")
+            if any(str(c).startswith("drop:") for c in scores.columns):
+                k = min(4, n_scored)
+                bars = contribution_chart(scores, Path(tmp) / "drop.png", rows=k)
+                sec.figure(bars, alt=(f"Bar charts for the {k} rows with the largest distance: for each sensor, "
+                                      "how much the squared distance falls when that sensor is left out, with "
+                                      "its plain standardized deviation written beside the bar."),
+                           caption="What drives the largest distances.", key="contributions")
+    rep.section("How to read this", key="reading").paragraph(
+        "Each row's squared Mahalanobis distance d2 measures how far its sensor readings are from the "
+        "baseline's mean, in units of the baseline's own spread and correlation. The p-value is the chance "
+        "that a healthy row would be at least this far; a row alarms when its p-value is below alpha, so in "
+        "a healthy batch about alpha times the rows alarm by chance alone.")
+    return rep
