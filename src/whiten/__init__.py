@@ -44,3 +44,12 @@ __all__ += ["gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_
             "KroneckerCovariance", "diagonal", "low_rank_plus_diagonal", "block_diagonal", "kronecker"]
 
 # --- baseline / monitoring re-exports go below this line ---
+from .baseline import Baseline, BaselineHealth, fit_baseline, load_baseline
+__all__ += ["Baseline", "BaselineHealth", "fit_baseline", "load_baseline"]
+from . import monitor
+__all__ += ["monitor"]
+
+# --- report re-exports go below this line ---
+from . import report
+from .report import Provenance, Report, monitoring_report
+__all__ += ["report", "Report", "Provenance", "monitoring_report"]

@@ -1,0 +1,130 @@
+"""Versioned model files: JSON with a format name, a payload and its SHA-256.
+
+Layout (a format of whiten's own)::
+
+    {
+      "format": "whiten.baseline/1",
+      "payload": { ... },
+      "sha256": "<hex digest of the canonical payload>"
+    }
+
+The canonical payload is ``json.dumps(payload, sort_keys=True,
+separators=(",", ":"), ensure_ascii=True, allow_nan=False)``; floats are
+written by ``repr``, which reads back to the same binary64 value. Files are
+written atomically (temporary file + rename, :mod:`whiten.io.atomic`) and never
+replace an existing file unless ``force=True``.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+import math
+import os
+from pathlib import Path
+from typing import Any
+
+from ..errors import ModelFileError
+from .atomic import write_text
+
+__all__ = ["write_model", "read_model", "canonical", "checksum", "utc_now", "jsonable"]
+
+
+def utc_now() -> str:
+    """The current time as an ISO 8601 UTC string, e.g. ``2026-12-01T23:05:00Z``."""
+    return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat().replace("+00:00", "Z")
+
+
+def jsonable(value: Any) -> Any:
+    """Plain JSON types: numpy scalars/arrays to Python, non-finite floats to None."""
+    import numpy as np
+
+    if isinstance(value, dict):
+        return {str(k): jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [jsonable(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return jsonable(value.tolist())
+    if isinstance(value, (np.bool_, bool)):
+        return bool(value)
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        v = float(value)
+        return v if math.isfinite(v) else None
+    if value is None or isinstance(value, (int, str)):
+        return value
+    return str(value)
+
+
+def canonical(payload: dict) -> str:
+    return json.dumps(payload, sort_keys=True, separators=(",", ":"), ensure_ascii=True, allow_nan=False)
+
+
+def checksum(payload: dict) -> str:
+    return hashlib.sha256(canonical(payload).encode("ascii")).hexdigest()
+
+
+def write_model(path: str | os.PathLike, fmt: str, payload: dict, *, force: bool = False) -> Path:
+    """Write ``payload`` under format name ``fmt`` (e.g. ``"whiten.baseline/1"``), atomically.
+
+    Raises
+    ------
+    InputError
+        The file exists and ``force`` is False, or its folder does not exist.
+    """
+    payload = jsonable(payload)
+    doc = {"format": fmt, "payload": payload, "sha256": checksum(payload)}
+    text = json.dumps(doc, indent=1, sort_keys=True, ensure_ascii=True, allow_nan=False) + "\n"
+    return write_text(path, text, force=force, what="model")
+
+
+def read_model(path: str | os.PathLike, fmt: str) -> dict:
+    """Read and verify a model file written by :func:`write_model`; returns the payload.
+
+    Raises
+    ------
+    ModelFileError
+        Missing, not JSON (e.g. truncated), another format or version, a
+        payload whose checksum does not match (edited or damaged).
+    """
+    p = Path(path)
+    if not p.exists():
+        raise ModelFileError(f"model file {str(p)!r} not found")
+    if p.is_dir():
+        raise ModelFileError(f"model path {str(p)!r} is a folder, not a model file")
+    try:
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError:
+        raise ModelFileError(f"model file {str(p)!r} is not text; it is not a whiten model file") from None
+    if not text.strip():
+        raise ModelFileError(f"model file {str(p)!r} is empty")
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise ModelFileError(
+            f"model file {str(p)!r} is not valid JSON (line {exc.lineno}, column {exc.colno}): "
+            "it is truncated or damaged; write it again") from None
+    if not isinstance(doc, dict) or "format" not in doc:
+        raise ModelFileError(f"model file {str(p)!r} has no 'format' field; it is not a whiten model file")
+    got = doc.get("format")
+    want_name, _, want_ver = fmt.partition("/")
+    if not isinstance(got, str) or got.partition("/")[0] != want_name:
+        raise ModelFileError(f"model file {str(p)!r} holds format {got!r}, expected {fmt!r}")
+    if got != fmt:
+        raise ModelFileError(
+            f"model file {str(p)!r} is format version {got.partition('/')[2]!r}; this whiten reads "
+            f"version {want_ver!r} ({fmt}). Refit the model with this version or upgrade whiten")
+    payload, digest = doc.get("payload"), doc.get("sha256")
+    if not isinstance(payload, dict) or not isinstance(digest, str):
+        raise ModelFileError(f"model file {str(p)!r} lacks its payload or checksum")
+    try:
+        actual = checksum(payload)
+    except ValueError:
+        raise ModelFileError(f"model file {str(p)!r} holds values that are not plain JSON numbers") from None
+    if actual != digest:
+        raise ModelFileError(
+            f"model file {str(p)!r} failed its SHA-256 check (stored {digest[:12]}..., computed "
+            f"{actual[:12]}...): it was edited or damaged after writing; refit or restore it")
+    return payload

@@ -1,0 +1,112 @@
+"""Model files: round trip, refusal to overwrite, truncated / edited / wrong-version files."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+
+import numpy as np
+import pytest
+
+import whiten
+from whiten.io.modelfile import canonical
+
+
+@pytest.fixture()
+def fitted():
+    rng = np.random.default_rng(21)
+    x = rng.normal(size=(300, 4)) @ np.array([[2, 0, 0, 0], [1, 1, 0, 0], [0, .5, 1, 0], [.3, 0, .2, .7]]).T
+    return whiten.fit_baseline(x + [20.0, 5.0, -3.0, 100.0], columns=["inlet", "outlet", "flow", "power"]), x
+
+
+def test_round_trip_scores_identically(tmp_path, fitted):
+    b, x = fitted
+    f = b.save(tmp_path / "m.json")
+    back = whiten.load_baseline(f)
+    # identical binary64 values after JSON (repr round-trips doubles exactly, Python float spec)
+    assert np.array_equal(back.mean, b.mean)
+    assert np.array_equal(back.factor.lower, b.factor.lower)
+    assert np.array_equal(back.gaussian.mahalanobis(x), b.gaussian.mahalanobis(x))
+    assert back.columns == b.columns and back.n == b.n and back.estimator == "sample"
+    assert back.health == b.health
+    doc = json.loads(f.read_text())
+    assert doc["format"] == "whiten.baseline/1"
+    # the checksum is SHA-256 (hashlib) of the canonical payload
+    assert doc["sha256"] == hashlib.sha256(canonical(doc["payload"]).encode()).hexdigest()
+    assert doc["payload"]["library_version"] == whiten.__version__
+    assert doc["payload"]["created_utc"].endswith("Z")
+
+
+def test_refuses_to_overwrite_without_force(tmp_path, fitted):
+    b, _ = fitted
+    f = tmp_path / "m.json"
+    b.save(f)
+    before = f.read_bytes()
+    with pytest.raises(whiten.InputError, match="already exists"):
+        b.save(f)
+    assert f.read_bytes() == before
+    b.save(f, force=True)
+    assert [p.name for p in tmp_path.iterdir()] == ["m.json"]  # no temporary file left
+
+
+def test_truncated_file_is_rejected(tmp_path, fitted):
+    b, _ = fitted
+    f = b.save(tmp_path / "m.json")
+    text = f.read_text()
+    f.write_text(text[: len(text) // 2])
+    with pytest.raises(whiten.ModelFileError, match="truncated"):
+        whiten.load_baseline(f)
+    f.write_text("")
+    with pytest.raises(whiten.ModelFileError, match="empty"):
+        whiten.load_baseline(f)
+
+
+def test_edited_file_is_rejected(tmp_path, fitted):
+    b, _ = fitted
+    f = b.save(tmp_path / "m.json")
+    doc = json.loads(f.read_text())
+    doc["payload"]["mean"][0] += 1e-9
+    f.write_text(json.dumps(doc))
+    with pytest.raises(whiten.ModelFileError, match="SHA-256"):
+        whiten.load_baseline(f)
+
+
+def test_wrong_format_or_version_is_rejected(tmp_path, fitted):
+    b, _ = fitted
+    f = b.save(tmp_path / "m.json")
+    doc = json.loads(f.read_text())
+    doc["format"] = "whiten.baseline/2"
+    f.write_text(json.dumps(doc))
+    with pytest.raises(whiten.ModelFileError, match="version '2'"):
+        whiten.load_baseline(f)
+    doc["format"] = "something.else/1"
+    f.write_text(json.dumps(doc))
+    with pytest.raises(whiten.ModelFileError, match="expected 'whiten.baseline/1'"):
+        whiten.load_baseline(f)
+    f.write_text(json.dumps([1, 2, 3]))
+    with pytest.raises(whiten.ModelFileError, match="not a whiten model file"):
+        whiten.load_baseline(f)
+    with pytest.raises(whiten.ModelFileError, match="not found"):
+        whiten.load_baseline(tmp_path / "absent.json")
+
+
+def test_inconsistent_payload_with_valid_checksum_is_rejected(tmp_path, fitted):
+    b, _ = fitted
+    f = b.save(tmp_path / "m.json")
+    doc = json.loads(f.read_text())
+    doc["payload"]["factor_lower"][2] = [1.0, 2.0]
+    doc["sha256"] = hashlib.sha256(canonical(doc["payload"]).encode()).hexdigest()
+    f.write_text(json.dumps(doc))
+    with pytest.raises(whiten.ModelFileError, match="factor row 2"):
+        whiten.load_baseline(f)
+    doc["payload"]["factor_lower"][2] = [1.0, 2.0, -3.0]
+    doc["sha256"] = hashlib.sha256(canonical(doc["payload"]).encode()).hexdigest()
+    f.write_text(json.dumps(doc))
+    with pytest.raises(whiten.ModelFileError, match="not a valid Cholesky factor"):
+        whiten.load_baseline(f)
+
+
+def test_missing_folder(tmp_path, fitted):
+    b, _ = fitted
+    with pytest.raises(whiten.InputError, match="does not exist"):
+        b.save(tmp_path / "nowhere" / "m.json")
