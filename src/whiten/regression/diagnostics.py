@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from typing import Sequence
 
 import numpy as np
 
@@ -93,7 +94,8 @@ def _join(items: list[str]) -> str:
     return ", ".join(items[:-1]) + " and " + items[-1]
 
 
-def collinearity_report(r: np.ndarray, names: list[str], *, exact_tol: float) -> CollinearityReport:
+def collinearity_report(r: np.ndarray, names: list[str], *, exact_tol: float,
+                        exact: Sequence[tuple[tuple, str]] = ()) -> CollinearityReport:
     """Belsley-Kuh-Welsch diagnostics from the R of the (any column scaling) design.
 
     Parameters
@@ -104,6 +106,10 @@ def collinearity_report(r: np.ndarray, names: list[str], *, exact_tol: float) ->
     exact_tol : float
         Singular values at or below ``exact_tol * s_max`` are reported as exact
         dependence (to working precision).
+    exact : sequence of (group names, sentence)
+        Exact dependencies already found by the rank test; they come first in
+        ``groups``/``sentences`` (several exact dependencies share their null
+        directions, so the proportions alone cannot always separate them).
 
     Notes
     -----
@@ -124,9 +130,15 @@ def collinearity_report(r: np.ndarray, names: list[str], *, exact_tol: float) ->
     phi = (vt ** 2) / (sc[:, None] ** 2)
     prop = phi / phi.sum(axis=0, keepdims=True)
     groups, gidx, sentences = [], [], []
+    for members, sentence in exact:
+        groups.append(tuple(members))
+        gidx.append(math.inf)
+        sentences.append(f"{_join(list(members))} are linearly dependent: {sentence}")
     for k in range(p - 1, -1, -1):  # worst direction first
         if not ci[k] > INDEX_THRESHOLD:
             continue
+        if exact and s[k] <= exact_tol * s_max:
+            continue  # already described exactly above
         members = [names[j] for j in range(p) if prop[k, j] > PROPORTION_THRESHOLD]
         if len(members) < 2:
             continue

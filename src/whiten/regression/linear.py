@@ -803,11 +803,13 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
     n, p = design.n, design.p
     names = design.all_names
     dep_sentences = []
+    exact = []
     dep_support: set[int] = set()
     for j in aside:
         support = [k for k in range(j) if k not in aside]
         sentence, used, _ = describe_dependence(r_full, s, j, support, names)
         dep_sentences.append(sentence)
+        exact.append((tuple(list(used) + [names[j]]), sentence))
         dep_support |= {names.index(u) for u in used}
     if aside:
         set_names = [names[j] for j in aside]
@@ -883,7 +885,7 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
     fitted = _fitted(design, sol.cols, beta)
     resid = design.y - fitted
     # collinearity and condition numbers
-    coll = collinearity_report(r_full, names, exact_tol=tol)
+    coll = collinearity_report(r_full, names, exact_tol=tol, exact=exact)
     cond = float(coll.condition_indices[-1]) if coll.condition_indices.size else 1.0
     cond_raw = condition_2(r_full / s[None, :])
     if sol.var_rows is None:
