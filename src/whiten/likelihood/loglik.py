@@ -103,12 +103,14 @@ def as_covariance(cov: Any):
     return cholesky(cov)
 
 
-def _finish(chi2, logdet, n, health, one):
+def _finish(chi2, logdet, n, health, one, details=True):
     from scipy import stats
 
     chi2 = np.asarray(chi2, dtype=float)
     logdet = np.asarray(logdet, dtype=float)
     ll = -0.5 * (n * _LOG_2PI + logdet + chi2)
+    if not details:  # the p-values cost more than the quadratic form for one short vector
+        return (float(ll.reshape(-1)[0]) if one else ll), None
     p = stats.chi2.sf(chi2, n)
     lp = stats.chi2.logsf(chi2, n)
     if one:
@@ -192,7 +194,7 @@ def _batched(resid: Any, cov: np.ndarray, mean: Any, return_details: bool):
     logdet = 2.0 * np.sum(np.log(np.diagonal(lower, axis1=-2, axis2=-1)), axis=-1)
     chi2 = np.broadcast_to(chi2, batch)
     logdet = np.broadcast_to(logdet, batch)
-    ll, details = _finish(chi2, logdet, n, None, one=False)
+    ll, details = _finish(chi2, logdet, n, None, one=False, details=return_details)
     return details if return_details else ll
 
 
@@ -282,7 +284,7 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
             raise InputError(f"mean: expected shape ({n},), got {m.shape}")
         shift = m
     chi2 = np.asarray(f.quad(rows, shift=shift)).reshape(batch)
-    ll, details = _finish(chi2, f.logdet(), n, f.health, one)
+    ll, details = _finish(chi2, f.logdet(), n, f.health, one, details=return_details)
     if return_details:
         return details
     if index is not None:
