@@ -225,3 +225,21 @@ def test_kronecker_health_multiplies_condition():
     assert s.rcond == pytest.approx(1e-5, rel=1e-12)
     with pytest.raises(InputError, match="matrix or a whiten.Factor"):
         whiten.kronecker(whiten.diagonal([1.0, 2.0]), b)
+
+
+def test_low_rank_quad_along_shared_source_keeps_digits():
+    # One source u with g = u^T D^{-1} u = 1e12: by the Sherman-Morrison formula
+    # (Sherman & Morrison, 1950) u^T (D + u u^T)^{-1} u = g / (1 + g) exactly.
+    # The subtraction form ||c||^2 - ... would lose about 12 digits here.
+    n = 100
+    d = np.linspace(0.5, 2.0, n)
+    u = np.full(n, 1.0)
+    u *= np.sqrt(1e12 / np.sum(u**2 / d))
+    g = float(np.sum(u**2 / d))
+    s = whiten.low_rank_plus_diagonal(u, d)
+    assert s.health.digits_lost == pytest.approx(12.0, abs=0.5)
+    assert s.quad(u) == pytest.approx(g / (1 + g), rel=1e-12)
+    # and a direction orthogonal (in the D^{-1} metric) to u sees only the noise
+    x = np.zeros(n)
+    x[0], x[1] = d[0], -d[1]  # x^T D^{-1} u = u0 - u1 = 0
+    assert s.quad(x) == pytest.approx(d[0] + d[1], rel=1e-12)

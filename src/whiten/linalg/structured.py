@@ -292,7 +292,7 @@ def diagonal(d: Any, *, names: Sequence[str] | None = None) -> DiagonalCovarianc
 
 # ------------------------------------------------------- low rank + diagonal
 class LowRankPlusDiagonal(StructuredCovariance):
-    """``diag(d) + U U^T`` held as d, U and the Cholesky factor of the k x k capacitance.
+    """``diag(d) + U U^T`` held as d, an orthonormal basis of D^{-1/2} U and a k x k Cholesky factor.
 
     Build with :func:`low_rank_plus_diagonal`.
     """
@@ -309,25 +309,27 @@ class LowRankPlusDiagonal(StructuredCovariance):
             raise InputError(f"U: row {r}, column {c} is {u[r, c]}; values must be finite")
         self._names = None
         self._sd = np.sqrt(self._d)
-        # V = D^{-1/2} U: the problem in the metric of the independent noise.
-        v = u / self._sd[:, None]
-        v.setflags(write=False)
-        self._v = v
         self._u = np.array(u, copy=True)
         self._u.setflags(write=False)
-        k = v.shape[1]
-        gram = v.T @ v
-        # C = I + V^T V has every eigenvalue >= 1, so it always factors; jitter
+        # V = D^{-1/2} U is the problem in the metric of the independent noise;
+        # its thin QR, V = Q R, turns I + V V^T into I + Q (R R^T) Q^T.
+        q, r = np.linalg.qr(u / self._sd[:, None], mode="reduced")
+        q.setflags(write=False)
+        self._q = q
+        m = r @ r.T
+        # The capacitance I + R R^T has the eigenvalues (and determinant) of
+        # I + U^T D^{-1} U = I + R^T R, all >= 1, so it always factors: jitter
         # would only hide a bug.
-        cap = np.eye(k) + 0.5 * (gram + gram.T)
+        cap = np.eye(m.shape[0]) + 0.5 * (m + m.T)
         self._cap = cholesky(cap, jitter=False)
-        self._gram = 0.5 * (gram + gram.T)
-        self._sqrt_m = None
-        hc = self._cap.health
-        # cond(C) = cond(I + V V^T) = cond(D^{-1/2} S D^{-1/2}), the matrix whose
-        # accuracy matters after the (exact) diagonal scaling, so C's rcond is the
-        # scaled estimate; the unscaled one is bounded by it times min(d)/max(d).
-        rc_s = hc.rcond
+        # D^{-1/2} S D^{-1/2} = I + V V^T is the matrix whose accuracy matters after
+        # the (exact) diagonal scaling. Its eigenvalues are those of C and, when
+        # k < n, 1 (the directions no shared source touches), so its condition
+        # number is lambda_max(C) / min(lambda_min(C), 1): a k x k eigenvalue
+        # problem. The unscaled estimate is bounded by it times min(d)/max(d).
+        ev = np.linalg.eigvalsh(cap)
+        low = min(float(ev[0]), 1.0) if m.shape[0] < self._d.size else float(ev[0])
+        rc_s = low / float(ev[-1])
         rc = rc_s * float(self._d.min() / self._d.max())
         self._health = FactorHealth(rc, rc_s, _digits(rc_s), 0.0, 0.0, "low-rank+diagonal")
 
@@ -337,11 +339,14 @@ class LowRankPlusDiagonal(StructuredCovariance):
 
     @property
     def rank(self) -> int:
-        return self._v.shape[1]
+        return self._u.shape[1]
 
     @property
     def capacitance(self) -> Factor:
-        """Cholesky factor of ``I + U^T diag(d)^{-1} U`` (k x k)."""
+        """Cholesky factor of the k x k capacitance ``I + R R^T`` (R from the QR of ``D^{-1/2} U``).
+
+        It has the eigenvalues and determinant of ``I + U^T D^{-1} U``.
+        """
         return self._cap
 
     @property
@@ -352,31 +357,29 @@ class LowRankPlusDiagonal(StructuredCovariance):
         """``sum(log d) + log det C`` by the matrix determinant lemma; never overflows."""
         return float(np.sum(np.log(self._d))) + self._cap.logdet()
 
-    def _solve_cols(self, b: np.ndarray) -> np.ndarray:
-        # Woodbury: S^{-1} = D^{-1/2} (I - V C^{-1} V^T) D^{-1/2}
-        c = b / self._sd[:, None]
-        t = self._cap.solve(self._v.T @ c)
-        return (c - self._v @ t) / self._sd[:, None]
+    def _split(self, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Rows c -> (coordinates a = c Q, part outside span(Q): c - a Q^T)."""
+        a = c @ self._q
+        return a, c - a @ self._q.T
 
-    def _quad_rows(self, rows: np.ndarray) -> np.ndarray:
-        c = rows / self._sd
-        w = self._cap.solve_lower(self._v.T @ c.T)  # (k, N): L_C^{-1} V^T c_i
-        q = np.einsum("ij,ij->i", c, c) - np.einsum("ji,ji->i", w, w)
-        # Both terms are non-negative and q >= 0 exactly; a negative value is
-        # cancellation at rounding level.
-        return np.maximum(q, 0.0)
+    def _solve_cols(self, b: np.ndarray) -> np.ndarray:
+        # S^{-1} = D^{-1/2} [(I - Q Q^T) + Q C^{-1} Q^T] D^{-1/2}  (Woodbury in the basis Q)
+        a, perp = self._split((b / self._sd[:, None]).T)
+        y = perp + (self._cap.solve(a.T).T) @ self._q.T
+        return y.T / self._sd[:, None]
 
     def _whiten_rows(self, rows: np.ndarray) -> np.ndarray:
-        # Symmetric square root: with G = V^T V = E diag(g) E^T and s = sqrt(1 + g),
-        # (I + V V^T)^{-1/2} = I - V E diag(1 / (s (s + 1))) E^T V^T. The k x k
-        # matrix in the middle is a function of G's eigenvalues, not an inverse,
-        # and 1/(s(s+1)) has no cancellation for any g >= 0.
-        if self._sqrt_m is None:
-            g, e = np.linalg.eigh(self._gram)
-            s = np.sqrt(1.0 + np.maximum(g, 0.0))
-            self._sqrt_m = (e * (1.0 / (s * (s + 1.0)))) @ e.T
-        c = rows / self._sd
-        return c - ((c @ self._v) @ self._sqrt_m) @ self._v.T
+        # W = (I - Q Q^T) + Q L_C^{-1} Q^T satisfies W^T W = (I + V V^T)^{-1}
+        a, perp = self._split(rows / self._sd)
+        return perp + self._cap.solve_lower(a.T).T @ self._q.T
+
+    def _quad_rows(self, rows: np.ndarray) -> np.ndarray:
+        # ||(I - Q Q^T) c||^2 + ||L_C^{-1} Q^T c||^2: a sum of two squares, with the
+        # part outside span(Q) formed explicitly, so a residual lying along the
+        # shared error sources is not lost to cancellation (as ||c||^2 - ... would be).
+        a, perp = self._split(rows / self._sd)
+        w = self._cap.solve_lower(a.T)
+        return np.einsum("ij,ij->i", perp, perp) + np.einsum("ji,ji->i", w, w)
 
     def _dense(self) -> np.ndarray:
         return np.diag(self._d) + self._u @ self._u.T
@@ -406,14 +409,20 @@ def low_rank_plus_diagonal(U: Any, d: Any) -> LowRankPlusDiagonal:
 
     Notes
     -----
-    With ``V = D^{-1/2} U`` and the capacitance ``C = I + V^T V = L_C L_C^T``
-    (factored by :func:`whiten.cholesky`), solves use the Woodbury identity
-    (Woodbury, 1950) ``S^{-1} b = D^{-1/2}(c - V C^{-1} V^T c)``, ``c = D^{-1/2} b``,
-    and the log-determinant the matrix determinant lemma
-    ``log det S = sum log d + log det C``. ``quad`` is
-    ``||c||^2 - ||L_C^{-1} V^T c||^2``. Cost: O(n k^2) once, O(n k) per row;
-    memory O(n k). ``health.digits_lost`` comes from the condition of C, which
-    equals that of ``D^{-1/2} S D^{-1/2}``.
+    With ``V = D^{-1/2} U = Q R`` (thin Householder QR) the covariance is
+    ``D^{1/2} (I + Q R R^T Q^T) D^{1/2}``. The k x k capacitance
+    ``C = I + R R^T = L_C L_C^T`` (factored by :func:`whiten.cholesky`) has the
+    eigenvalues of the textbook ``I + U^T D^{-1} U``. Solves use the Woodbury
+    identity (Woodbury, 1950) in the basis Q,
+    ``S^{-1} b = D^{-1/2} [c - Q Q^T c + Q C^{-1} Q^T c]``, ``c = D^{-1/2} b``; the
+    log-determinant the matrix determinant lemma ``log det S = sum log d + log det C``;
+    ``whiten`` the map ``(I - Q Q^T) + Q L_C^{-1} Q^T`` and ``quad`` the sum of
+    squares ``||c - Q Q^T c||^2 + ||L_C^{-1} Q^T c||^2``. The plain Woodbury form
+    ``||c||^2 - ||L_C^{-1} V^T c||^2`` subtracts two nearly equal numbers when c
+    lies along the shared sources and loses ``log10 cond(C)`` digits; the sum of
+    squares does not. Cost: O(n k^2) once, O(n k) per row; memory O(n k).
+    ``health.digits_lost`` is ``log10 cond(D^{-1/2} S D^{-1/2})``, read off the
+    eigenvalues of the k x k capacitance.
 
     Examples
     --------
