@@ -107,7 +107,10 @@ def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
         route = getattr(h, "path", None) or getattr(h, "method", None)
         est = attrs.get("estimator") or getattr(baseline, "estimator", None)
         m = attrs.get("reference_rows")
-        words = f"{est or 'unstated'} estimate" + (f" from {m} reference rows" if m else "")
+        if est is None and not m:
+            words = "mean and covariance supplied as known (not estimated here)"
+        else:
+            words = f"{est or 'unnamed'} estimate" + (f" from {m} reference rows" if m else "")
         if route:
             words += f"; numerical route: {route}"
         gram = getattr(h, "gram_digits_lost", None)
