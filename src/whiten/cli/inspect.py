@@ -1,0 +1,91 @@
+"""``whiten inspect``: describe a saved baseline: size, sensors, health, redundancy, correlations."""
+
+from __future__ import annotations
+
+import argparse
+import warnings
+
+import numpy as np
+
+from ..errors import NumericalWarning
+
+EPILOG = """\
+examples:
+  whiten inspect pump_baseline.json
+  whiten inspect pump_baseline.json --tol 1e-4 --top 10
+
+Near-redundant sensors are found by a pivoted Cholesky factorization of the
+correlation matrix: a sensor is listed when less than TOL of its variance is
+left unexplained by the sensors chosen before it. The model file is verified
+(format, version, SHA-256) before anything is printed.
+"""
+
+
+def add_parser(sub) -> None:
+    p = sub.add_parser(
+        "inspect", help="describe a baseline model file",
+        description="Describe a baseline written by `whiten baseline`: rows, sensors, estimator, condition, "
+                    "jitter, near-redundant sensors and the strongest correlations.",
+        epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("model", metavar="MODEL.json", help="model file from `whiten baseline`")
+    p.add_argument("--tol", type=float, default=1e-6,
+                   help="unexplained-variance fraction below which a sensor counts as redundant (default 1e-6)")
+    p.add_argument("--top", type=int, default=5, help="how many correlations to list (default 5)")
+    p.set_defaults(func=run)
+
+
+def correlation(b) -> np.ndarray:
+    low = b.factor.lower
+    sd = np.sqrt(np.einsum("ij,ij->i", low, low))
+    # rows of L scaled to unit length give the correlation as their Gram matrix
+    u = low / sd[:, None]
+    return u @ u.T
+
+
+def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
+    from .. import pivoted_cholesky
+    from .baseline import health_lines
+    from ..errors import InputError
+
+    if not tol > 0:
+        raise InputError(f"--tol: expected a positive number, got {tol}")
+    out = []
+    if b.created_utc:
+        out.append(f"written: {b.created_utc}")
+    out += health_lines(b)
+    corr = correlation(b)
+    rep = pivoted_cholesky(corr, tol=tol, names=b.columns)
+    if rep.full_rank:
+        out.append(f"near-redundant sensors: none (each keeps more than {tol:g} of its variance unexplained "
+                   "by the others)")
+    else:
+        out.append(f"near-redundant sensors (tolerance {tol:g}):")
+        for d, sentence in zip(rep.dependent, rep.describe()):
+            out.append(f"  {sentence} (unexplained variance {rep.residual_variance[d]:.2g})")
+    # 1 / VIF_j = share of sensor j's variance not explained by all the others; the precision
+    # diagonal comes from triangular solves with the factor and is only reported
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", NumericalWarning)
+        own = 1.0 / (np.diag(b.cov) * b.factor.inv_diag())  # inverse-ok: reported share of variance, not an operator
+    order = np.argsort(own)[: min(3, b.dim)]
+    out.append("least independent sensors: " + ", ".join(
+        f"{b.columns[k]} ({100 * own[k]:.3g}% of its variance its own)" for k in order))
+    if b.dim > 1:
+        iu = np.triu_indices(b.dim, 1)
+        r = corr[iu]
+        idx = np.argsort(-np.abs(r))[: max(0, top)]
+        out.append("strongest correlations:")
+        for k in idx:
+            i, j = iu[0][k], iu[1][k]
+            out.append(f"  {b.columns[i]} ~ {b.columns[j]}: r = {r[k]:+.3f}")
+    return out
+
+
+def run(args) -> int:
+    from .. import load_baseline
+
+    b = load_baseline(args.model)
+    print(f"model {args.model}")
+    for line in inspect_lines(b, tol=args.tol, top=args.top):
+        print(f"  {line}")
+    return 0
