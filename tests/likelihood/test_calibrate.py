@@ -146,3 +146,26 @@ def test_structured_covariance_in_calibrate_matches_dense():
     np.testing.assert_allclose(a.theta_cov, b.theta_cov, rtol=1e-6)
     assert a.loglik == pytest.approx(b.loglik, rel=1e-10)
     assert math.isfinite(a.p_value)
+
+
+def test_ill_conditioned_jacobian_warns_with_numbers():
+    from whiten.errors import ConditioningWarning
+
+    # two parameters the data can barely tell apart: columns t and t + 1e-11 t^2
+    t = np.linspace(0.1, 1.0, 12)
+    x = np.column_stack([t, t + 1e-11 * t**2])
+    with pytest.warns(ConditioningWarning, match=r"condition \d\.\d+e\+1\d, about 1\d\.\d digits lost"):
+        fit = whiten.calibrate(lambda th: x @ th, [0.0, 0.0], 2 * t, np.eye(12), jac=lambda th: x)
+    # numpy's condition number of the (already white) design is the reference
+    assert fit.health.cond == pytest.approx(np.linalg.cond(x), rel=1e-3)
+    assert fit.health.rank == 2 and fit.health.digits_lost > 10
+
+
+def test_model_exception_becomes_input_error():
+    t = np.linspace(0, 1, 5)
+
+    def model(th):
+        return t / 0 if th[0] > 100 else th[0] * t + 1 // int(th[0] - th[0])
+
+    with pytest.raises(InputError, match="ZeroDivisionError"):
+        whiten.calibrate(model, [1.0], t, np.eye(5))

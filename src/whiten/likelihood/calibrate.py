@@ -218,8 +218,8 @@ def _check_options(options: dict) -> dict:
 def _predict(model: Callable, theta: np.ndarray, n: int) -> np.ndarray:
     try:
         out = np.asarray(model(theta.copy()), dtype=np.float64)
-    except (TypeError, ValueError) as exc:
-        raise InputError(f"model(theta) failed at theta={theta.tolist()}: {exc}") from None
+    except (TypeError, ValueError, ArithmeticError) as exc:
+        raise InputError(f"model(theta) failed at theta={theta.tolist()}: {type(exc).__name__}: {exc}") from None
     if out.shape != (n,):
         raise InputError(f"model(theta) returned shape {out.shape}; expected ({n},) to match y")
     if not np.isfinite(out).all():

@@ -213,8 +213,9 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
         :func:`whiten.kronecker`) is used as it is. An array with more than two
         axes is a stack of covariances; its batch shape broadcasts against
         ``resid.shape[:-1]``.
-    mean : array_like, shape (n,) or (..., n), optional
+    mean : array_like, shape (n,), optional
         Subtracted from ``resid`` first (so raw observations can be passed).
+        With a stack of covariances it may have shape (..., n) and broadcasts.
     return_details : bool
         Return a :class:`LikelihoodSummary` instead of the log-likelihood.
 
@@ -240,8 +241,14 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
     variances of 1e-30 stay finite. Cost for one covariance: n^3/3 to factor
     (skipped for a Factor), then n^2 per residual row. For a stack, one
     ``numpy.linalg.cholesky`` and one broadcast triangular solve over the whole
-    stack (no Python loop per matrix). To reuse a factor across calls see the
-    module notes: build it once and pass it.
+    stack (no Python loop per matrix).
+
+    To reuse a factor across calls (the covariance fixed, the residuals
+    changing, as inside an optimizer), build it once and pass it; nothing is
+    refactored::
+
+        f = whiten.cholesky(sigma)        # or a structured covariance
+        lls = [whiten.gaussian_loglik(y - model(th), f) for th in thetas]
 
     Examples
     --------
