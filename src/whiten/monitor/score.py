@@ -267,18 +267,12 @@ def add_fdr(cols: dict, q: float) -> None:
 
 
 def _read_path(path: str | os.PathLike, columns: Sequence[str]):
+    """The model's columns of a table file as one DataFrame (via whiten.io.tables, in chunks)."""
     import pandas as pd
 
-    p = os.fspath(path)
-    if not os.path.exists(p):
-        raise InputError(f"data file {p!r} does not exist")
-    try:
-        df = pd.read_csv(p)
-    except pd.errors.EmptyDataError:
-        raise InputError(f"data file {p!r} is empty") from None
-    if df.shape[0] == 0:
-        raise InputError(f"data file {p!r} has a header but no rows")
-    return df
+    from ..io.tables import read_table_chunks
+
+    return pd.concat(list(read_table_chunks(path, columns=list(columns))))
 
 
 def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "marginalize",
