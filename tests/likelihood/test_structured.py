@@ -267,7 +267,8 @@ def test_low_rank_random_against_dense(n, k, scale, spread, seed):
     ref_q = np.einsum("ij,ji->i", x, np.linalg.solve(dense, x.T))
     np.testing.assert_allclose(s.quad(x), ref_q, rtol=tol)
     assert s.logdet() == pytest.approx(np.linalg.slogdet(dense)[1], abs=tol * n)
-    assert s.health.digits_lost == pytest.approx(np.log10(kappa), abs=1e-6 + 1e-8 * np.log10(kappa))
+    # numpy's cond of the formed matrix is itself only good to ~kappa*eps relative
+    assert s.health.digits_lost == pytest.approx(np.log10(kappa), abs=1e-9 + 50 * n * kappa * EPS)
 
 
 @given(a=st.integers(1, 5), b=st.integers(1, 5), ca=st.floats(1.0, 1e4), cb=st.floats(1.0, 1e4),
