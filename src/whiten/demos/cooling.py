@@ -197,9 +197,16 @@ def run(out: Path, *, force: bool = False) -> list[str]:
     lines.append(
         f"  {drift.index[0]} to {drift.index[-1]}: a slow rise; first alarm at {first}, "
         f"{int(drift['alarm'].sum())} of {len(drift)} rows alarm, top sensor '{who_d}' in {k_d}.")
+    # the same alpha on the sensor alone: two-sided normal limit (scipy.stats.norm)
+    from scipy.stats import norm
+
+    z_lim = float(norm.isf(alpha / 2))
+    alone = np.abs(drift[f"dev:{who_d}"].to_numpy()) > z_lim if who_d else np.zeros(len(drift), bool)
+    first_alone = drift.index[alone][0] if alone.any() else "never in this period"
     lines.append(
-        f"    '{who_d}' ends about {end_dev:+.1f} sd from normal on its own too: a plain drift "
-        "(e.g. a clogging strainer), which a single-sensor limit would also catch, later.")
+        f"    '{who_d}' ends about {end_dev:+.1f} sd from normal on its own too: a plain drift (e.g. a "
+        f"clogging strainer). A single-sensor limit at the same alpha (|dev| > {z_lim:.2f}) first fires "
+        f"at {first_alone}.")
 
     partial = int(((s["n_observed"] > 0) & (s["n_observed"] < len(SENSORS))).sum())
     none = int((s["n_observed"] == 0).sum())
