@@ -158,8 +158,33 @@ def test_blocked_path_matches_statsmodels():
     with whiten.options(block_rows=300):
         fit = whiten.fit_linear(x, y, method="blocked", refine=True)
         inf = fit.influence()
-    assert fit.health.path == "blocked-tsqr"
+    assert fit.health.path == "blocked-cholqr2" and fit.health.refinement_steps >= 1
     tol = 100 * kappa(a) * EPS
     np.testing.assert_allclose(fit.coef, ref.params, rtol=tol)   # statsmodels OLS params
     np.testing.assert_allclose(fit.stderr, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels OLS bse
     np.testing.assert_allclose(inf.leverage, OLSInfluence(ref).hat_matrix_diag, rtol=1e3 * tol)
+
+
+def test_blocked_paths_hand_over_when_ill_conditioned():
+    """cond ~1e7: CholeskyQR2 declines (Gram rcond < 1e-12), Householder TSQR runs; with refinement
+    asked for, the fit moves to the dense Householder route and says so. Reference: numpy lstsq
+    on the unit-length design (an SVD solver), tolerance c * kappa * eps * (1 + kappa * tan theta)."""
+    rng = np.random.default_rng(9)
+    n = 3000
+    x = rng.standard_normal((n, 3))
+    x[:, 2] = x[:, 1] + 1e-7 * rng.standard_normal(n)
+    y = x @ [1.0, 2.0, 3.0] + 0.01 * rng.standard_normal(n)
+    a = np.column_stack([np.ones(n), x])
+    norms = np.linalg.norm(a, axis=0)
+    ref = np.linalg.lstsq(a / norms, y, rcond=None)[0] / norms       # numpy lstsq
+    k = kappa(a)
+    with whiten.options(block_rows=500):
+        quick = whiten.fit_linear(x, y, method="blocked", refine=False)
+        careful = whiten.fit_linear(x, y, method="blocked", refine=True)
+    assert quick.health.path == "blocked-tsqr" and quick.health.refinement_steps == 0
+    assert careful.health.path == "blocked-tsqr->householder"
+    assert any("redone by Householder" in note for note in careful.health.notes)
+    tan_t = np.linalg.norm(y - a @ ref) / np.linalg.norm(a @ ref)
+    tol = 100 * k * EPS * (1 + k * tan_t)
+    np.testing.assert_allclose(quick.coef, ref, rtol=tol)
+    np.testing.assert_allclose(careful.coef, ref, rtol=tol)

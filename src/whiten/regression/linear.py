@@ -38,7 +38,7 @@ from .._warn import warn
 from ..errors import ConditioningWarning, InputError, RankDeficiencyWarning
 from . import _extended
 from .diagnostics import CollinearityReport, collinearity_report, describe_dependence, vif_from_r
-from .qr import (condition_2, greedy_rank_drop, householder_thin, pow2_column_scale, sequential_dependence,
+from .qr import (cholqr2_r, condition_2, greedy_rank_drop, householder_thin, pow2_column_scale, sequential_dependence,
                  tri_rcond, tri_solve, tsqr_r)
 
 __all__ = ["LinearFit", "FitHealth", "fit_linear", "RANK_POLICIES", "INTERCEPT_NAME"]
@@ -53,6 +53,8 @@ DENSE_CELLS = 2_000_000
 #: cond^2 * eps << 1; above this scaled condition number it hands over to Householder
 BLOCKED_MAX_COND = 1e5
 MAX_REFINE = 6
+#: on the many-row path, refine="auto" refines when fewer digits than this would survive
+BLOCKED_AUTO_DIGITS = 8
 
 
 # --------------------------------------------------------------------------- results
@@ -438,6 +440,21 @@ class _Design:
             b = self.factor.solve_lower(b)
         return a, b
 
+    def augmented_blocks(self, rows: int):
+        """C-ordered row blocks of ``[design | y]`` (weights applied), one copy each."""
+        p = self.p
+        k0 = int(self.intercept)
+        for a in range(0, self.n, rows):
+            b = min(a + rows, self.n)
+            blk = np.empty((b - a, p + 1))
+            if self.intercept:
+                blk[:, 0] = 1.0
+            blk[:, k0:p] = self.x[a:b]
+            blk[:, p] = self.y[a:b]
+            if self.sqrt_w is not None:
+                blk *= self.sqrt_w[a:b, None]
+            yield a, b, blk
+
     def whitened_blocks(self, rows: int):
         """Row blocks (a, b, design block, response block); weights only (no GLS)."""
         for a in range(0, self.n, rows):
@@ -594,13 +611,18 @@ def _blocked_solution(design: _Design, tol, policy, max_steps, refine, notes):
     p = design.p
 
     def blocks():
-        for _, _, blk, yb in design.whitened_blocks(rows):
-            yield np.column_stack([blk, yb])
+        for _, _, blk in design.augmented_blocks(rows):
+            yield blk
 
-    raug = tsqr_r(blocks(), p + 1)
+    raug = cholqr2_r(blocks, p + 1)
+    path = "blocked-cholqr2"
+    if raug is None:
+        # ill-conditioned, or an exact fit ([A y] singular): Householder on every block
+        raug = tsqr_r(blocks(), p + 1)
+        path = "blocked-tsqr"
     norms = np.sqrt(np.einsum("ij,ij->j", raug[:, :p], raug[:, :p]))
     s = pow2_column_scale(norms)
-    # Householder QR commutes exactly with power-of-two column scaling
+    # power-of-two column scaling is exact, so R of the scaled design is R * s
     r_full = raug[:p, :p] * s[None, :]
     aside = sequential_dependence(r_full, tol)
     kept = [j for j in range(p) if j not in aside]
@@ -619,14 +641,17 @@ def _blocked_solution(design: _Design, tol, policy, max_steps, refine, notes):
         return s, r_full, aside, None
     rc = tri_rcond(r)
     if refine == "auto":
-        # skip refinement when the first-order bound already promises 13 digits
+        # Many rows: refine only when fewer than BLOCKED_AUTO_DIGITS digits would survive;
+        # beyond that the statistical uncertainty dwarfs the rounding error.
         zn = float(np.linalg.norm(z))
         rho = float(abs(rk[len(kept), len(kept)])) if rk.shape[0] > len(kept) else 0.0
         kap = 1.0 / max(rc, 1e-300)
         bound = _EPS * (kap + kap * kap * (rho / zn if zn > 0 else math.inf))
-        refine = bool(bound > 1e-13)
+        refine = bool(bound > 10.0 ** -BLOCKED_AUTO_DIGITS)
         if not refine:
-            notes.append(f"refinement skipped: error bound {bound:.2g} already below 1e-13")
+            notes.append(f"refinement skipped on the many-row path: error bound {bound:.2g} "
+                         f"(about {-math.log10(max(bound, _EPS)):.1f} digits) is far below the statistical "
+                         "uncertainty; pass refine=True to refine anyway")
     if rc < tol or (refine and 1.0 / max(rc, 1e-300) > BLOCKED_MAX_COND):
         notes.append(f"blocked QR showed a scaled 1-norm condition near {1 / max(rc, 1e-300):.2g}; "
                      f"above {BLOCKED_MAX_COND:g} the semi-normal refinement would not converge, "
@@ -638,17 +663,32 @@ def _blocked_solution(design: _Design, tol, policy, max_steps, refine, notes):
     steps, conv, corr, prev = 0, False, math.nan, math.inf
 
     def residual_pass(xc, want_grad):
+        if not want_grad and kind == "none":
+            # plain double: one matrix-vector product over the whole design, no copies
+            beta = xc * sw
+            k0 = int(design.intercept)
+            pred = [c - k0 for c in kept if c >= k0]
+            fit_ = design.x[:, pred] @ beta[len(kept) - len(pred):] if len(pred) < design.x.shape[1] \
+                else design.x @ beta[len(kept) - len(pred):]
+            if design.intercept and 0 in kept:
+                fit_ = fit_ + beta[0]
+            res = design.y - fit_
+            if design.sqrt_w is not None:
+                res = res * design.sqrt_w
+            return res, None
+        # one pass: residual b - A x and gradient A^T r, both in extended precision when refining
         res = np.empty(design.n)
         grad = np.zeros(len(kept))
-        for a0, b0, blk, yb in design.whitened_blocks(rows):
+        for a0, b0, blk in design.augmented_blocks(rows):
             ab = blk[:, kept] * sw[None, :]
+            yb = blk[:, p]
             if kind == "none":
                 rb = yb - ab @ xc
             else:
                 rb = _extended.residual(ab, xc, yb, None, kind)
             res[a0:b0] = rb
             if want_grad:
-                grad += ab.T @ rb
+                grad += _extended.gradient(ab, rb, kind) if kind != "none" else ab.T @ rb
         return res, grad
 
     res, grad = residual_pass(x, refine)
@@ -667,7 +707,7 @@ def _blocked_solution(design: _Design, tol, policy, max_steps, refine, notes):
                 conv = corr < 1e-10
                 break
             prev = corr
-    sol = _Solution(kept, x, r, res, None, steps, conv, corr, kind, "blocked-tsqr", notes)
+    sol = _Solution(kept, x, r, res, None, steps, conv, corr, kind, path, notes)
     return s, r_full, aside, sol
 
 
@@ -788,7 +828,7 @@ def fit_linear(
         raise InputError("method='blocked' does not support error_cov (GLS whitening needs all rows at once)")
     sol = None
     if use_blocked:
-        s, r_full, aside, sol = _blocked_solution(design, tol, rank_policy, MAX_REFINE, refine, notes)
+        s, r_full, aside, sol = _blocked_solution(design, tol, rank_policy, 3, refine, notes)
     if sol is None:
         a, b = design.whitened()
         norms = np.sqrt(np.einsum("ij,ij->j", a, a))
@@ -881,9 +921,13 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
         keep = [j for j in range(p) if j not in aside]
         coef, stderr, tvals, pvals = coef[keep], stderr[keep], tvals[keep], pvals[keep]
         out_names = [names[j] for j in keep]
-    # fitted / residuals in y units
-    fitted = _fitted(design, sol.cols, beta)
-    resid = design.y - fitted
+    # fitted / residuals in y units (from the accurate whitened residuals when rows are only weighted)
+    if design.factor is not None or sol.var_rows is not None:
+        fitted = _fitted(design, sol.cols, beta)
+        resid = design.y - fitted
+    else:
+        resid = sol.wresid / design.sqrt_w if design.sqrt_w is not None else sol.wresid.copy()
+        fitted = design.y - resid
     # collinearity and condition numbers
     coll = collinearity_report(r_full, names, exact_tol=tol, exact=exact)
     cond = float(coll.condition_indices[-1]) if coll.condition_indices.size else 1.0
