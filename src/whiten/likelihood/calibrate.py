@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from typing import Any, Callable, Sequence
+from typing import Any, Callable
 
 import numpy as np
 
