@@ -135,3 +135,18 @@ def test_baseline_score_hook_and_round_trip(files):
     again = score(loaded, rows, alpha=0.01)
     assert np.allclose(again["d2"], direct["d2"], rtol=1e-13, equal_nan=True)
     assert np.array_equal(again["alarm"], direct["alarm"])
+
+
+def test_limit_basis_says_when_the_exact_law_is_approximate():
+    # the F/Beta laws (Tracy, Young & Mason 1992) assume the unweighted sample estimate
+    rng = np.random.default_rng(8)
+    x = rng.standard_normal((120, 3))
+    cols = ["a", "b", "c"]
+    plain = score(whiten.fit_baseline(x, columns=cols), x[:2]).attrs["limit_basis"]
+    assert "F(3, 117)" in plain and "approximate" not in plain
+    shr = score(whiten.fit_baseline(x, columns=cols, estimator="shrinkage"), x[:2]).attrs["limit_basis"]
+    assert "approximate here" in shr and "'shrinkage'" in shr
+    w = score(whiten.fit_baseline(x, columns=cols, weights=rng.uniform(0.5, 1.5, 120)), x[:2])
+    assert "row weights" in w.attrs["limit_basis"]
+    known = score(whiten.fit_baseline(x, columns=cols, estimator="shrinkage"), x[:2], phase="known")
+    assert "approximate" not in known.attrs["limit_basis"]

@@ -130,6 +130,8 @@ class Scorer:
         low = self.factor.lower
         self.sd = np.sqrt(np.einsum("ij,ij->i", low, low))
         self._cache: dict[bytes, _SubModel] = {}
+        ws = getattr(baseline, "weight_sum", None)
+        self.weight_sum = None if ws is None else float(ws)
         self.limit_basis = self._limit_basis()
 
     def _limit_basis(self) -> str:
@@ -138,6 +140,10 @@ class Scorer:
         if self.phase != "known" and est not in (None, "sample"):
             return (f"{law}; approximate here: the law holds for the plain sample estimate, "
                     f"this baseline uses estimator {est!r}")
+        if self.phase != "known" and self.weight_sum is not None and self.m is not None \
+                and abs(self.weight_sum - self.m) > 1e-9 * self.m:
+            return (f"{law}; approximate here: the law holds for unweighted rows, this baseline "
+                    f"was fitted with row weights (sum {self.weight_sum:.6g} over {self.m} rows)")
         return law
 
     def _sub(self, obs: np.ndarray) -> _SubModel:
