@@ -195,7 +195,13 @@ class _Source:
     def _init_array(self, data, columns) -> None:
         if self.weight_column is not None:
             raise InputError("weights: a column name works with DataFrame or file input; pass an array of weights")
-        values, _, _ = _validate.as_float_array(data, name="data", ndim=(2,), allow_nan=True)
+        arr = np.asarray(data)
+        if arr.ndim == 2 and arr.dtype.kind in "biuf":
+            # no copy for float64 input; infinities are caught block by block by the cleaner,
+            # which saves a full pass (and an N x p mask) over a large array
+            values = arr.astype(np.float64, copy=False)
+        else:  # the general converter gives the precise message
+            values, _, _ = _validate.as_float_array(data, name="data", ndim=(2,), allow_nan=True)
         p = values.shape[1]
         if columns is None:
             names = [f"x{k}" for k in range(p)]
@@ -264,7 +270,7 @@ class _Source:
     def raw_blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None, np.ndarray, Any]]:
         """(values with NaN, weights-from-column or None, positions, labels) per block."""
         if self._array is not None:
-            rows = max(1, int(current().block_rows)) * 8
+            rows = max(1, int(current().block_rows))
             if self.chunksize is not None:
                 rows = int(self.chunksize)
             n = self._array.shape[0]
@@ -343,9 +349,21 @@ class _Cleaner:
                     k = int(np.flatnonzero(badw)[0])
                     raise InputError(f"weights: row {int(pos[k])} has weight {w[k]}; weights must be finite "
                                      "and non-negative")
-            nan = np.isnan(vals)
-            bad = nan.any(axis=1)
-            if bad.any():
+            # cheap screen: the total is finite unless some value is NaN or infinite (or the sum
+            # overflows, a harmless false alarm); only then look cell by cell
+            bad = None
+            if vals.size and not np.isfinite(vals.sum()):
+                inf = np.isinf(vals)
+                if inf.any():
+                    r, c = (int(v) for v in np.argwhere(inf)[0])
+                    where = f"row {int(pos[r])}" + ("" if lab is None or lab[r] == pos[r] else f" (index {lab[r]!r})")
+                    raise InputError(f"data: {where}, column {names[c]!r} is {vals[r, c]}; every value must be "
+                                     "a finite number (a missing value may be NaN)")
+                nan = np.isnan(vals)
+                bad = nan.any(axis=1)
+                if not bad.any():
+                    bad = None
+            if bad is not None:
                 k = int(np.flatnonzero(bad)[0])
                 j = int(np.flatnonzero(nan[k])[0])
                 where = f"row {int(pos[k])}" + ("" if lab is None or lab[k] == pos[k] else f" (index {lab[k]!r})")
