@@ -231,3 +231,37 @@ def test_grad_cov_against_finite_differences():
 def test_docstring_examples(module):
     res = doctest.testmod(importlib.import_module(module), optionflags=doctest.NORMALIZE_WHITESPACE)
     assert res.attempted > 0 and res.failed == 0
+
+
+def test_log_space_p2000_dense_scaled_down():
+    # A correlated p=2000 covariance scaled by s^2 = 1e-60: det underflows to 0
+    # in float64. Change of variables (textbook: the density of s*X is
+    # f(x/s)/s^p) gives loglik(s r; s^2 S) = loglik(r; S) - p log s exactly.
+    p = 2000
+    rng = np.random.default_rng(13)
+    a = rng.standard_normal((p, 40))
+    s_mat = a @ a.T / 40 + np.eye(p)
+    r = rng.standard_normal(p)
+    sc = 1e-30
+    base = whiten.gaussian_loglik(r, s_mat)
+    small = whiten.gaussian_loglik(sc * r, (sc * sc) * s_mat)
+    assert np.linalg.det(sc * sc * s_mat[:200, :200]) == 0.0  # even a 200x200 corner underflows
+    assert np.isfinite(small)
+    # both sides are ~1e5 in size; the Cholesky of either is backward stable
+    assert small == pytest.approx(base - p * math.log(sc), rel=1e-12)
+
+
+def test_inputs_not_modified_by_loglik_and_calibrate():
+    s = _spd(6, 100.0, seed=2)
+    r = np.random.default_rng(1).standard_normal((3, 6))
+    s0, r0 = s.copy(), r.copy()
+    whiten.gaussian_loglik(r, s, mean=np.ones(6), return_details=True)
+    whiten.gaussian_loglik(r, np.stack([s, s, s]))
+    whiten.loglik_grad_cov(r, s, np.stack([s, s]))
+    t = np.linspace(0, 1, 6)
+    y = 1 + t
+    y0 = y.copy()
+    whiten.calibrate(lambda th: th[0] + th[1] * t, np.zeros(2), y, s)
+    np.testing.assert_array_equal(s, s0)
+    np.testing.assert_array_equal(r, r0)
+    np.testing.assert_array_equal(y, y0)
