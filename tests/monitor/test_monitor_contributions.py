@@ -181,3 +181,19 @@ def test_inputs(setup, tmp_path):
         score(b, df, missing="drop")
     with pytest.raises(InputError, match="baseline: expected"):
         score(object(), df)
+
+
+def test_chain_order_with_missing_sensors(setup):
+    b, new, mu, cov, kappa = setup
+    order = ["power", "flow", "vib", "inlet_t", "dp", "outlet_t"]
+    x = new[:3].copy()
+    x[0, COLS.index("power")] = np.nan  # the first sensor of the order is missing: flow leads
+    x[1, COLS.index("dp")] = np.nan
+    s = score(b, x, order=order)
+    tol = 50 * P * kappa * EPS
+    chain = s[[f"chain:{c}" for c in COLS]].to_numpy()
+    assert np.allclose(np.nansum(chain, axis=1), s["d2"], rtol=tol)  # still sums to d2 on the marginal
+    f = COLS.index("flow")
+    # flow is first among the observed sensors of row 0: its term is its own squared deviation
+    assert s["chain:flow"].iloc[0] == pytest.approx((x[0, f] - mu[f]) ** 2 / cov[f, f], rel=tol)
+    assert np.isnan(s["chain:power"].iloc[0]) and np.isnan(s["chain:dp"].iloc[1])
