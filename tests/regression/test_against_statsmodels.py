@@ -178,8 +178,9 @@ def test_blocked_paths_hand_over_when_ill_conditioned():
     norms = np.linalg.norm(a, axis=0)
     ref = np.linalg.lstsq(a / norms, y, rcond=None)[0] / norms       # numpy lstsq
     k = kappa(a)
-    with whiten.options(block_rows=500):
+    with whiten.options(block_rows=500), pytest.warns(whiten.ConditioningWarning, match="'x1' and 'x2'"):
         quick = whiten.fit_linear(x, y, method="blocked", refine=False)
+    with whiten.options(block_rows=500), pytest.warns(whiten.ConditioningWarning, match="condition number 2"):
         careful = whiten.fit_linear(x, y, method="blocked", refine=True)
     assert quick.health.path == "blocked-tsqr" and quick.health.refinement_steps == 0
     assert careful.health.path == "blocked-tsqr->householder"

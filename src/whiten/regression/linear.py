@@ -963,8 +963,8 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
              f"the last digit of the data (scaled condition number {cond_fit:.3g}, residual/fit ratio "
              f"{tan_t:.2g}, first-order error bound {bound:.2g}); for the data exactly as given the solve "
              f"reached about {solved:.1f} digits ({sol.steps} refinement steps). "
-             + (" ".join(coll.sentences) if coll.sentences else "")
-             + " Consider centring/rescaling predictors, removing near-duplicates, or ridge=...")
+             + (" ".join(s.rstrip(".") + "." for s in coll.sentences) + " " if coll.sentences else "")
+             + "Consider removing near-duplicate columns, centring polynomial terms, or ridge=...")
     weighted = "gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none")
     return LinearFit(
         names=tuple(out_names), coef=_ro(coef), stderr=_ro(stderr), tvalues=_ro(tvals), pvalues=_ro(pvals),
