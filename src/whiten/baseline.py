@@ -129,7 +129,7 @@ class _Source:
             self._init_frame(data, columns, index_column)
         elif isinstance(data, np.ndarray) or (isinstance(data, (list, tuple)) and (
                 len(data) == 0 or not _is_frame(data[0]))):
-            self._init_array(data, columns)
+            self._init_array(data, columns, index_column)
         elif isinstance(data, Iterable):
             self._init_chunks(data, columns, index_column)
         else:
@@ -192,7 +192,10 @@ class _Source:
         self.label = "DataFrame"
         self.total_rows = values.shape[0]
 
-    def _init_array(self, data, columns) -> None:
+    def _init_array(self, data, columns, index_column=None) -> None:
+        if index_column is not None:
+            raise InputError("index_column: works with DataFrame or file input; an array has no columns to "
+                             "take labels from")
         if self.weight_column is not None:
             raise InputError("weights: a column name works with DataFrame or file input; pass an array of weights")
         arr = np.asarray(data)
@@ -503,6 +506,18 @@ class Baseline:
         """Plain-Python description (what the model file holds, without the checksum)."""
         return self._payload()
 
+    def to_frame(self):
+        """One row per column: ``mean``, ``sd`` (square root of the variance) and
+        ``own_share``, the share of its variance not explained by the other
+        columns (1 / VIF), from the factor's reported precision diagonal."""
+        import pandas as pd
+
+        low = self._factor.lower
+        var = np.einsum("ij,ij->i", low, low)
+        own = 1.0 / (var * self._factor.inv_diag())  # inverse-ok: reported share of variance, not an operator
+        return pd.DataFrame({"mean": self._mean, "sd": np.sqrt(var), "own_share": own},
+                            index=pd.Index(self._columns, name="column"))
+
     # -- sliding windows
     def _rows_for_window(self, rows: Any, what: str) -> np.ndarray:
         if self._estimator != "sample":
@@ -616,7 +631,9 @@ class Baseline:
             "factor_lower": [low[i, : i + 1].tolist() for i in range(low.shape[0])],
             "estimator": self._estimator,
             "params": self._params,
-            "health": dataclasses.asdict(self._health),
+            # JSON has no infinity: a non-finite health figure is written as the string "inf"
+            "health": {k: ("inf" if isinstance(v, float) and math.isinf(v) else v)
+                       for k, v in dataclasses.asdict(self._health).items()},
             "created_utc": self._created,
             "library_version": __version__,
         })
@@ -657,9 +674,12 @@ class Baseline:
                 if len(r) != i + 1:
                     raise bad(f"factor row {i} has {len(r)} entries, expected {i + 1}")
                 low[i, : i + 1] = np.asarray(r, dtype=np.float64)
-            hd = dict(payload["health"])
+            hd = {k: (math.inf if v == "inf" else v) for k, v in dict(payload["health"]).items()}
+            known = {f.name for f in dataclasses.fields(BaselineHealth)}
+            if set(hd) != known:
+                raise bad(f"health fields {sorted(set(hd) ^ known)} missing or unknown")
             for k in ("rcond", "rcond_scaled", "digits_lost", "jitter", "jitter_relative"):
-                hd[k] = math.inf if (k == "digits_lost" and hd[k] is None) else float(hd[k] if hd[k] is not None else 0.0)
+                hd[k] = float(hd[k])
             health = BaselineHealth(**hd)
             n = int(payload["n"])
             est = str(payload["estimator"])

@@ -89,6 +89,8 @@ def test_options_are_checked():
         whiten.fit_baseline(x, weights=-np.ones(80))
     with pytest.raises(whiten.InputError, match="chunksize"):
         whiten.fit_baseline(x, chunksize=0)
+    with pytest.raises(whiten.InputError, match="index_column: works with DataFrame or file input"):
+        whiten.fit_baseline(x, index_column="t")
     with pytest.raises(whiten.InputError, match="cannot read rows"):
         whiten.fit_baseline(3.5)
 

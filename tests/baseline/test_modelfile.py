@@ -110,3 +110,34 @@ def test_missing_folder(tmp_path, fitted):
     b, _ = fitted
     with pytest.raises(whiten.InputError, match="does not exist"):
         b.save(tmp_path / "nowhere" / "m.json")
+
+
+@pytest.mark.parametrize("estimator", ["shrinkage", "robust"])
+def test_round_trip_other_estimators(tmp_path, fitted, estimator):
+    _, x = fitted
+    import pandas as pd
+
+    df = pd.DataFrame(x, columns=list("abcd"), index=pd.date_range("2026-01-01", periods=len(x), freq="h"))
+    b = whiten.fit_baseline(df, estimator=estimator)
+    back = whiten.load_baseline(b.save(tmp_path / "m.json"))
+    assert back.estimator == estimator and back.health == b.health
+    assert np.array_equal(back.gaussian.mahalanobis(x), b.gaussian.mahalanobis(x))
+    if estimator == "robust":
+        assert back.params["flagged_rows"] == b.params["flagged_rows"]
+        assert back.params["flagged_labels"] == [str(v) for v in b.params["flagged_labels"]]
+    else:
+        assert back.params["intensity"] == b.params["intensity"]
+
+
+def test_infinite_health_figure_survives(tmp_path):
+    rng = np.random.default_rng(4)
+    t = rng.normal(size=200)
+    x = np.column_stack([t, t + 1e-6 * rng.normal(size=200), rng.normal(size=200)])
+    with pytest.warns(whiten.ConditioningWarning):
+        b = whiten.fit_baseline(x)
+    import dataclasses
+
+    b2 = whiten.baseline.Baseline(mean=b.mean, factor=b.factor, n=b.n, columns=b.columns, estimator="sample",
+                                  params=b.params, health=dataclasses.replace(b.health, gram_digits_lost=np.inf))
+    back = whiten.load_baseline(b2.save(tmp_path / "m.json"))
+    assert back.health.gram_digits_lost == np.inf

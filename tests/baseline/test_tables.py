@@ -90,3 +90,26 @@ def test_missing_cells_in_a_file_are_dropped_and_counted(tmp_path):
     np.testing.assert_allclose(b.cov, np.cov(ref, rowvar=False), rtol=1e-12)  # numpy.cov on complete rows
     with pytest.raises(whiten.InputError, match=r"row 7 \(index 't00007'\), column 'ret' is missing"):
         whiten.fit_baseline(tmp_path / "gaps.csv", index_column="stamp", missing="error")
+
+
+def test_progress_bar_only_when_asked_or_on_a_terminal(tmp_path, capsys):
+    df = _frame(300)
+    df.to_csv(tmp_path / "p.csv", index=False)
+    whiten.fit_baseline(tmp_path / "p.csv", index_column="stamp", chunksize=100)
+    assert capsys.readouterr().err == ""  # stderr is not a terminal under pytest
+    whiten.fit_baseline(tmp_path / "p.csv", index_column="stamp", chunksize=100, progress=True)
+    assert "reading" in capsys.readouterr().err  # tqdm's bar, forced on
+
+
+def test_to_frame_summary():
+    df = _frame(400).drop(columns="stamp")
+    b = whiten.fit_baseline(df)
+    t = b.to_frame()
+    assert list(t.index) == ["supply", "ret", "pump"]
+    np.testing.assert_allclose(t["sd"], df.std(ddof=1), rtol=1e-12)  # pandas std, n - 1
+    # 1 - R^2 of each column on the others (numpy.linalg.lstsq, textbook definition of 1/VIF)
+    for c in df.columns:
+        others = np.column_stack([np.ones(len(df)), df.drop(columns=c).to_numpy()])
+        res = np.linalg.lstsq(others, df[c].to_numpy(), rcond=None)[1][0]
+        own = res / ((df[c] - df[c].mean()) ** 2).sum()
+        assert t.loc[c, "own_share"] == pytest.approx(own, rel=1e-10)
