@@ -45,11 +45,13 @@ def filler_scores(filler_model, filler_batch) -> pd.DataFrame:
 
 
 #: every kind of report the browser tests open
-REPORT_KINDS = ["monitoring"]
+REPORT_KINDS = ["monitoring", "regression", "likelihood"]
 
 
 def build_reports(scores, model) -> dict:
     """HTML text of one report of each kind in :data:`REPORT_KINDS`."""
     from whiten.report import monitoring_report
 
-    return {"monitoring": monitoring_report(scores, model).to_html()}
+    from .test_report_jobs import job_reports
+
+    return {"monitoring": monitoring_report(scores, model).to_html(), **job_reports()}

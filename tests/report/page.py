@@ -46,7 +46,7 @@ class ReportPage(HTMLParser):
     images : list of dict
         ``{"src", "alt"}`` per ``<img>``.
     tiles : dict
-        ``data-key -> {"value": data-value, "text": shown text, "label": dt text}``.
+        ``data-key -> {"value": data-value, "text": shown text, "label": dt text, "note": note text}``.
     tables : dict
         ``data-key -> {"caption", "head": [..], "rows": [[(text, data-value or None), ..]], "row_heads": [..]}``.
     ids, anchors : set of str
@@ -101,12 +101,14 @@ class ReportPage(HTMLParser):
         if tag == "img":
             self.images.append({"src": a.get("src", ""), "alt": a.get("alt")})
         if tag == "div" and "tile" in a.get("class", "").split():
-            self._tile = {"key": a.get("data-key", ""), "value": None, "text": "", "label": ""}
+            self._tile = {"key": a.get("data-key", ""), "value": None, "text": "", "label": "", "note": ""}
         if self._tile is not None and tag == "dt":
             self._grab = "label"
         if self._tile is not None and tag == "span" and "value" in a.get("class", "").split():
             self._tile["value"] = a.get("data-value")
             self._grab = "text"
+        if self._tile is not None and tag == "span" and "note" in a.get("class", "").split():
+            self._grab = "note"
         if tag == "table":
             self._table = {"key": a.get("data-key", ""), "caption": "", "head": [], "rows": [], "row_heads": [],
                            "_part": None}

@@ -58,6 +58,7 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    args._argv = list(sys.argv[1:] if argv is None else argv)  # for the "what was run" block of --report
     if not getattr(args, "func", None):
         parser.print_help()
         return 2

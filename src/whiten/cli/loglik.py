@@ -41,6 +41,7 @@ def add_parser(sub) -> None:
     p.add_argument("--cov", metavar="FILE", help="square CSV covariance with a header of names (use with --mean)")
     p.add_argument("-o", "--output", required=True, metavar="OUT.csv", help="where to write the per-row values")
     p.add_argument("--force", action="store_true", help="replace the output file if it exists")
+    p.add_argument("--report", metavar="FILE.html", help="also write a one-file HTML report (whiten.report)")
     p.set_defaults(func=run)
 
 
@@ -159,6 +160,10 @@ def run(args) -> int:
     from ..io.atomic import atomic_open, check_writable
 
     check_writable(args.output, force=args.force)
+    report = getattr(args, "report", None)
+    if report:
+        check_writable(report, force=args.force, what="report")
+    parts = []  # per-chunk evaluations, kept only for --report
     g, names = _model(args)
     total, evaluated, partial, empty, rows = 0.0, 0, 0, 0, 0
     # streamed into a temporary sibling, renamed into place only when complete
@@ -166,6 +171,8 @@ def run(args) -> int:
         fh.write("row,loglik,d2,n_observed\n")
         for chunk in _chunks(args.data, names):
             ev = g.evaluate(chunk[names].to_numpy(dtype=float), missing="marginalize")
+            if report:
+                parts.append(ev)
             lines = []
             for k in range(len(ev.logpdf)):
                 nobs = int(ev.n_observed[k])
@@ -187,4 +194,15 @@ def run(args) -> int:
     jit = f", jitter {h.jitter:.3g} added to the diagonal" if h.jitter else ""
     print(f"covariance: about {h.digits_trusted:.0f} significant digits trusted in solves (rcond {h.rcond:.3g}{jit})")
     print(f"wrote {args.output}")
+    if report:  # --report: one self-contained HTML file (whiten.report)
+        from ..gaussian import RowEvaluation
+        from ..report import cli_provenance, likelihood_report
+
+        if not parts:
+            raise InputError(f"--report: no rows were read from {args.data!r}; nothing to report")
+        ev = RowEvaluation(*(np.concatenate([getattr(e, k) for e in parts]) for k in ("d2", "logpdf", "n_observed")))
+        files = [f for f in (args.data, args.mean, args.cov) if f]
+        likelihood_report(ev, g, provenance=cli_provenance(args, inputs=files, model=args.baseline)
+                          ).write(report, force=args.force)
+        print(f"wrote {report}")
     return 0

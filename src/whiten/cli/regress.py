@@ -60,6 +60,7 @@ def add_parser(sub) -> None:
     p.add_argument("-o", "--output", required=True, metavar="FIT.json", help="where to write the fit")
     p.add_argument("--chart", metavar="FILE.png", help="write diagnostic charts (PNG)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
+    p.add_argument("--report", metavar="FILE.html", help="also write a one-file HTML report (whiten.report)")
     p.set_defaults(func=run)
 
 
@@ -227,6 +228,8 @@ def run(args) -> int:
         check_writable(args.chart, force=args.force, what="chart")
         if os.path.abspath(args.chart) == os.path.abspath(args.output):
             raise InputError("--chart and -o must be different files")
+    if getattr(args, "report", None):
+        check_writable(args.report, force=args.force, what="report")
     if not 0 < args.level < 1:
         raise InputError(f"--level: must be strictly between 0 and 1 (e.g. 0.95), got {args.level}")
     df = _read_table(args.data)
@@ -249,6 +252,12 @@ def run(args) -> int:
     write_text(args.output, json.dumps(doc, indent=1, allow_nan=False) + "\n", force=args.force, what="fit")
     if args.chart:
         _chart(fit, args.chart, args.force)
+    if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report)
+        from ..report import cli_provenance, regression_report
+
+        regression_report(fit, response=args.response, level=args.level,
+                          provenance=cli_provenance(args, inputs=[args.data])).write(args.report, force=args.force)
     print(text, end="")
-    print(f"fit written to {args.output}" + (f", charts to {args.chart}" if args.chart else ""))
+    print(f"fit written to {args.output}" + (f", charts to {args.chart}" if args.chart else "")
+          + (f", report to {args.report}" if getattr(args, "report", None) else ""))
     return 0

@@ -58,6 +58,8 @@ def add_parser(sub) -> None:
     p.add_argument("--index-column", metavar="COL", help="column that labels rows (e.g. a timestamp); kept in the output")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
+    p.add_argument("--report", metavar="FILE.html",
+                   help="also write a one-file HTML report (whiten.report); reads the scores back once")
     p.set_defaults(func=run)
 
 
@@ -98,6 +100,8 @@ def run(args) -> int:
         check_writable(args.chart, force=args.force, what="chart")
         if Path(args.chart).resolve() == out.resolve():
             raise InputError("--chart and -o name the same file")
+    if getattr(args, "report", None):
+        check_writable(args.report, force=args.force, what="report")
     baseline = load_baseline(model_path)
     scorer = Scorer(baseline, alpha=args.alpha, phase=args.phase)
     header = table_columns(args.data)
@@ -194,6 +198,15 @@ def run(args) -> int:
         distance_chart(frame, args.chart, force=args.force,
                        title=f"Squared Mahalanobis distance per row: {os.path.basename(str(args.data))}")
         lines.append(f"chart written to {args.chart}")
+    if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report)
+        from ..report import cli_provenance, monitoring_report
+
+        scores = pd.read_csv(out, index_col=0, usecols=lambda c: not str(c).startswith("chain:"))
+        scores.attrs.update(scorer.attrs(args.fdr))
+        monitoring_report(scores, baseline, title=f"Scores of {os.path.basename(str(args.data))}",
+                          provenance=cli_provenance(args, inputs=[args.data], model=args.baseline)
+                          ).write(args.report, force=args.force)
+        lines.append(f"report written to {args.report}")
     lines.append(CAUTION)
     print("\n".join(lines))
     sys.stdout.flush()

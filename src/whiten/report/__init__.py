@@ -9,11 +9,14 @@ fetched), prints cleanly and reads at phone width.
 from .document import (CAUTION_CALIBRATION, CAUTION_SCREEN, Bullets, Figure, KeyFigure, Paragraph, Report, Section,
                        Table, TrustLine, format_number)
 from .monitoring import monitoring_report, worst_rows
-from .provenance import FileRecord, Provenance, count_rows, file_record, sha256_file
+from .likelihood import likelihood_report, likelihood_rows
+from .regression import coefficient_table, regression_report
+from .provenance import FileRecord, Provenance, cli_provenance, count_rows, file_record, sha256_file
 
 __all__ = [
     "Report", "Section", "KeyFigure", "Paragraph", "Bullets", "Table", "Figure", "TrustLine", "format_number",
     "CAUTION_SCREEN", "CAUTION_CALIBRATION",
-    "Provenance", "FileRecord", "file_record", "sha256_file", "count_rows",
-    "monitoring_report", "worst_rows",
+    "Provenance", "FileRecord", "file_record", "sha256_file", "count_rows", "cli_provenance",
+    "monitoring_report", "worst_rows", "regression_report", "coefficient_table",
+    "likelihood_report", "likelihood_rows",
 ]

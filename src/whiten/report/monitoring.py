@@ -69,6 +69,7 @@ def worst_rows(scores: Any, k: int = 5, top: int = 3):
         best = [j for j in np.argsort(-row, kind="stable")[: int(top)] if np.isfinite(row[j])]
         tops.append(", ".join(f"{sensors[j]} ({format_number(drops[i, j], 3)})" for j in best))
     note = scores["note"].to_numpy(dtype=object)[order] if "note" in scores.columns else [""] * len(order)
+    note = [v if isinstance(v, str) else "" for v in note]  # a CSV read back gives NaN for empty notes
     out = pd.DataFrame({
         "d2": d2[order], "limit": scores["limit"].to_numpy(dtype=float)[order], "p_value": pv[order],
         "alarm": scores["alarm"].to_numpy(dtype=bool)[order], "top sensors": tops, "note": list(note),

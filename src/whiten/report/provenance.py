@@ -26,7 +26,7 @@ from typing import Any, Iterable, Sequence
 from .._version import __version__
 from ..errors import InputError
 
-__all__ = ["FileRecord", "Provenance", "file_record", "sha256_file", "count_rows"]
+__all__ = ["FileRecord", "Provenance", "file_record", "sha256_file", "count_rows", "cli_provenance"]
 
 _CHUNK = 1 << 20
 _OPENERS = {".gz": gzip.open, ".bz2": bz2.open, ".xz": lzma.open}
@@ -248,3 +248,17 @@ class Provenance:
         d["extra"] = [list(kv) for kv in self.extra]
         return d
 
+
+
+def cli_provenance(args: Any, inputs: Iterable[str | os.PathLike] = (),
+                   model: str | os.PathLike | None = None) -> Provenance:
+    """Provenance for a ``whiten`` command: its own command line, the files it read.
+
+    The command line is ``whiten`` followed by the arguments
+    :func:`whiten.cli.main` received (``args._argv``); when the namespace
+    lacks them (a command run some other way) the process's ``sys.argv`` is used.
+    """
+    argv = getattr(args, "_argv", None)
+    if argv is None:
+        argv = sys.argv[1:]
+    return Provenance.collect(inputs=inputs, model=model, command=["whiten", *[str(a) for a in argv]])
