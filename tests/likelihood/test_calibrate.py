@@ -69,17 +69,20 @@ def test_rescaled_covariance_equals_statsmodels_bse(linear_case):
     assert fit.rescaled and fit.health.jacobian == "finite-difference"
 
 
-def test_profile_interval_linear_is_wald(linear_case):
+@pytest.mark.parametrize("rescale", [False, True])
+def test_profile_interval_linear_is_wald(linear_case, rescale):
     # For a model linear in theta with Gaussian errors the profile chi-square is
     # exactly quadratic, so the profile interval is theta +/- z * se (e.g. Seber &
-    # Wild, Nonlinear Regression, 1989, sec. 5.4; from memory).
+    # Wild, Nonlinear Regression, 1989, sec. 5.4; from memory). With the
+    # covariance rescaled, both the threshold and se carry the reduced chi-square.
     x, y, s = linear_case
-    fit = whiten.calibrate(lambda th: x @ th, np.zeros(3), y, s, jac=lambda th: x, names=["offset", "gain", "tc"])
+    fit = whiten.calibrate(lambda th: x @ th, np.zeros(3), y, s, jac=lambda th: x, names=["offset", "gain", "tc"],
+                           rescale=rescale)
     iv = whiten.profile_interval(fit, "gain", level=0.9)
     z = stats.norm.ppf(0.95)
     assert iv.lower == pytest.approx(fit.theta[1] - z * fit.stderr[1], rel=1e-7)
     assert iv.upper == pytest.approx(fit.theta[1] + z * fit.stderr[1], rel=1e-7)
-    assert iv.threshold == pytest.approx(stats.chi2.ppf(0.9, 1))
+    assert iv.threshold == pytest.approx(stats.chi2.ppf(0.9, 1) * (fit.reduced_chi2 if rescale else 1.0))
 
 
 def test_nonlinear_calibration_recovers_truth_and_profile_ends_rise_by_threshold():
