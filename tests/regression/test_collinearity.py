@@ -173,3 +173,75 @@ def test_compensated_and_longdouble_residuals_agree_with_exact_arithmetic():
     g = _extended.gradient(a, comp, "compensated")
     ge = [float(sum(Fraction(a[i, j]) * Fraction(comp[i]) for i in range(7))) for j in range(4)]
     np.testing.assert_allclose(g, ge, rtol=1e-12)
+
+
+def test_spread_out_near_dependence_found_by_singular_values():
+    """Kahan's (1966) triangular matrix: no column is close to the span of the earlier ones
+    (unpivoted and even column-pivoted QR miss it), yet the smallest singular value of the
+    unit-length design is ~7e-6 of the largest (numpy svd). With rank_tol=1e-4 the rank test
+    must fall back to singular values and set aside the latest column whose removal restores
+    rank (checked here with numpy's SVD of every candidate)."""
+    n, th = 30, 1.2
+    k = np.diag(np.sin(th) ** np.arange(n)) @ (np.eye(n) - np.cos(th) * np.triu(np.ones((n, n)), 1))
+    a = np.vstack([k, np.zeros((10, n))])
+    y = np.random.default_rng(2).standard_normal(n + 10)
+
+    def ratio(m):
+        s = np.linalg.svd(m / np.linalg.norm(m, axis=0), compute_uv=False)   # numpy SVD
+        return s[-1] / s[0]
+
+    assert ratio(k) < 1e-4
+    latest = max(j for j in range(n) if ratio(np.delete(k, j, axis=1)) > 1e-4)
+    with pytest.warns(RankDeficiencyWarning, match=f"rank 29 of 30.*'x{latest}' set aside"):
+        fit = whiten.fit_linear(a, y, intercept=False, rank_tol=1e-4)
+    assert fit.health.set_aside == (f"x{latest}",) and "svd-rank" in fit.health.path
+
+
+def test_residual_arithmetic_without_wider_longdouble(monkeypatch):
+    """Where numpy.longdouble is plain double (Windows, ARM64 macOS), "longdouble" requests fall
+    back to compensated arithmetic rather than silently losing the extra digits."""
+    from whiten.regression import _extended
+
+    monkeypatch.setattr(_extended, "LONGDOUBLE_IS_WIDER", False)
+    assert _extended.extended_kind("longdouble") == "compensated"
+    rng = np.random.default_rng(3)
+    x = rng.standard_normal((4000, 3))
+    y = x @ [1.0, 2.0, 3.0] + rng.standard_normal(4000)
+    with whiten.options(block_rows=512):
+        fit = whiten.fit_linear(x, y, method="blocked", refine=True)
+    assert fit.health.residual_arithmetic == "compensated" and fit.health.refinement_steps >= 1
+    ref = np.linalg.lstsq(np.column_stack([np.ones(4000), x]), y, rcond=None)[0]   # numpy lstsq
+    np.testing.assert_allclose(fit.coef, ref, rtol=1e-12)
+
+
+def test_refinement_beats_plain_qr_on_a_hard_polynomial():
+    """Degree-8 polynomial on [10, 12] (invented calibration range): scaled condition ~1e9.
+    Reference: exact rational least squares with Python fractions (standard library) on the
+    normal equations. Refined coefficients must be far closer than the unrefined QR ones."""
+    from fractions import Fraction
+
+    t = np.linspace(10.0, 12.0, 15)
+    x = np.column_stack([t ** j for j in range(1, 9)])
+    y = np.cos(t)
+    a = np.column_stack([np.ones_like(t), x])
+    fa = [[Fraction(v) for v in row] for row in a]
+    fy = [Fraction(v) for v in y]
+    p = a.shape[1]
+    g = [[sum(fa[i][r] * fa[i][c] for i in range(len(t))) for c in range(p)] for r in range(p)]
+    h = [sum(fa[i][r] * fy[i] for i in range(len(t))) for r in range(p)]
+    for col in range(p):   # Gauss-Jordan elimination in exact rationals
+        piv = g[col][col]
+        for r in range(p):
+            if r != col:
+                f = g[r][col] / piv
+                g[r] = [g[r][c] - f * g[col][c] for c in range(p)]
+                h[r] = h[r] - f * h[col]
+    exact = np.array([float(h[r] / g[r][r]) for r in range(p)])
+    with pytest.warns(whiten.ConditioningWarning):
+        refined = whiten.fit_linear(x, y)
+    with pytest.warns(whiten.ConditioningWarning):
+        plain = whiten.fit_linear(x, y, refine=False)
+    err = lambda c: float(np.max(np.abs(c - exact) / np.abs(exact)))  # noqa: E731
+    assert refined.condition_number > 1e8
+    assert err(refined.coef) < 1e-11
+    assert err(refined.coef) < 1e-3 * err(plain.coef)

@@ -10,8 +10,8 @@ Problems"):
 3. Householder QR of the design in the user's column order; a column whose
    distance from the span of the columns before it is at most
    ``rank_tol * max|r_ii|`` is set aside (the later of two dependent columns);
-   if the remaining triangle still looks singular, a pivoted QR settles the rank
-   and columns are set aside latest-first;
+   if the remaining triangle still looks singular (``dtrcon``), the singular
+   values of R settle the rank and columns are set aside latest-first;
 4. iterative refinement of the augmented system ``[I A; A^T 0][r; x] = [b; 0]``
    (Björck, 1967) with the residuals in extended precision;
 5. standard errors from triangular solves with R.
@@ -572,8 +572,8 @@ def _dense_solution(a, b, s, tol, policy, all_names, max_steps, refine, notes, p
     if kept and tri_rcond(r) < tol:
         extra = greedy_rank_drop(r, kept, tol)
         if extra:
-            notes.append("rank in doubt after the sequential test; a pivoted QR settled it")
-            path += "+pivoted"
+            notes.append("rank in doubt after the sequential test; the singular values of R settled it")
+            path += "+svd-rank"
             aside = sorted(set(aside) | set(extra))
             kept = [j for j in range(r_full.shape[1]) if j not in aside]
             q, r = householder_thin(aS[:, kept])
@@ -846,7 +846,9 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
     exact = []
     dep_support: set[int] = set()
     for j in aside:
-        support = [k for k in range(j) if k not in aside]
+        # all kept columns: for an exact dependence on earlier columns the later ones get
+        # (numerically) zero weight; for a spread-out one (the SVD route) they take part
+        support = [k for k in range(p) if k not in aside]
         sentence, used, _ = describe_dependence(r_full, s, j, support, names)
         dep_sentences.append(sentence)
         exact.append((tuple(list(used) + [names[j]]), sentence))
@@ -863,7 +865,7 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
                   "minimum-norm": "the minimum-norm solution over all columns is reported"}[policy]
         warn(RankDeficiencyWarning,
              f"design has rank {p - len(aside)} of {p} columns (tolerance {tol:.2g} relative to the largest "
-             f"|r_ii|): {', '.join(repr(x) for x in set_names)} set aside as dependent on earlier columns; "
+             f"|r_ii|): {', '.join(repr(x) for x in set_names)} set aside as linear combinations of the columns kept; "
              f"{action}. " + "; ".join(dep_sentences))
     rank = len(sol.cols) if sol.var_rows is None else sol.var_rows.shape[0]
     dof = n - rank

@@ -180,20 +180,22 @@ def sequential_dependence(r: np.ndarray, tol: float) -> list[int]:
 def greedy_rank_drop(r: np.ndarray, kept: list[int], tol: float) -> list[int]:
     """Extra columns to set aside when the kept columns are still numerically rank deficient.
 
-    ``r`` is the R of the kept columns (in order). The numerical rank comes from
-    a pivoted QR of ``r`` (Businger & Golub, 1965) with the same relative
-    tolerance. Columns are then tried latest-first in the user's order: a
-    column is set aside if the others keep that rank. Deterministic (order,
-    not pivoting, decides), cost O(p^4) on the small triangle only.
+    ``r`` is the R of the kept columns (in order). The numerical rank is the
+    number of singular values of ``r`` (columns scaled to unit length) above
+    ``tol * s_max`` -- the SVD, because column pivoting can miss a spread-out
+    near-dependence (Kahan's 1966 example). Columns are then tried latest-first
+    in the user's order: a column is set aside if the others keep that rank.
+    Deterministic (order, not pivoting, decides); cost O(p^4) on the small
+    triangle only, and it runs only when the cheap sequential test left the
+    triangle looking singular.
     """
-    import scipy.linalg as sl
 
     def rank_of(m: np.ndarray) -> int:
         if m.shape[1] == 0:
             return 0
-        rr = sl.qr(m, mode="r", pivoting=True)[0]
-        d = np.abs(np.diag(rr))
-        return int(np.sum(d > tol * d[0])) if d.size and d[0] > 0 else 0
+        norms = np.sqrt(np.einsum("ij,ij->j", m, m))
+        sv = np.linalg.svd(m / np.where(norms > 0, norms, 1.0)[None, :], compute_uv=False)
+        return int(np.sum(sv > tol * sv[0])) if sv[0] > 0 else 0
 
     target = rank_of(r)
     cols = list(range(len(kept)))
