@@ -63,6 +63,19 @@ def test_minimum_norm_duplicate_splits_evenly():
     ref = np.linalg.lstsq(sm.add_constant(x.to_numpy()), y.to_numpy(), rcond=None)[0]   # numpy lstsq
     np.testing.assert_allclose(fit.coef, ref, rtol=1e-10)
     assert fit.rank == 3
+    # statsmodels OLS (default method "pinv") reports the standard errors of the same minimum-norm
+    # estimator (with a duplicated column the two scalings give the same solution for every y)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        bse = sm.OLS(y.to_numpy(), sm.add_constant(x.to_numpy())).fit().bse
+    np.testing.assert_allclose(fit.stderr, bse, rtol=1e-9)
+    # unit-length coordinates: the answer does not depend on the predictors' units. The copy
+    # recorded in other units (x1000) still takes half the effect (raw minimum norm would give it
+    # nearly all: 4000/(1 + 1e6) per unit versus 4/(1 + 1e6) for the original)
+    x2 = x.assign(gauge_copy=x["gauge_copy"] * 1000.0)
+    with pytest.warns(RankDeficiencyWarning):
+        fit2 = whiten.fit_linear(x2, y, rank_policy="minimum-norm")
+    np.testing.assert_allclose(fit2.coef * [1, 1, 1000.0, 1], fit.coef, rtol=1e-9)
 
 
 def test_duplicate_column_names_both():

@@ -578,7 +578,7 @@ def _dense_solution(a, b, s, tol, policy, all_names, max_steps, refine, notes, p
             kept = [j for j in range(r_full.shape[1]) if j not in aside]
             q, r = householder_thin(aS[:, kept])
     if aside and policy == "minimum-norm":
-        return r_full, aside, _minimum_norm(aS, b, q_full=None, r_full=r_full, tol=tol, path=path, notes=notes)
+        return r_full, aside, _minimum_norm(aS, b, tol=tol, path=path, notes=notes)
     kind = "compensated"
     if refine:
         x, res, steps, conv, corr = _refine_dense(aS[:, kept], b, q, r, kind, max_steps)
@@ -590,19 +590,25 @@ def _dense_solution(a, b, s, tol, policy, all_names, max_steps, refine, notes, p
     return r_full, aside, sol
 
 
-def _minimum_norm(aS, b, q_full, r_full, tol, path, notes):
-    """Minimum-norm solution over all columns in equilibrated coordinates (SVD of R)."""
+def _minimum_norm(aS, b, tol, path, notes):
+    """Minimum-norm solution over all columns, with the columns scaled to exactly unit length.
+
+    In those coordinates the answer does not depend on the units of the
+    predictors (the raw minimum-norm solution does). Truncated SVD of the R of
+    the design (p x p), singular values at or below ``tol * s_max`` dropped.
+    """
     q, r = householder_thin(aS)
-    u, sv, vt = np.linalg.svd(r)
+    cn = np.sqrt(np.einsum("ij,ij->j", r, r))
+    cn = np.where(cn > 0, cn, 1.0)
+    u, sv, vt = np.linalg.svd(r / cn[None, :])
     k = int(np.sum(sv > tol * sv[0]))
     c = u[:, :k].T @ (q.T @ b)
-    x = vt[:k].T @ (c / sv[:k])
+    x = (vt[:k].T @ (c / sv[:k])) / cn
     res = _extended.residual(aS, x, b, None, "compensated")
-    notes.append("minimum-norm solution in unit-length column coordinates (truncated SVD of R; not refined)")
-    var_rows = (vt[:k] / sv[:k, None])  # inverse-ok: squared column norms are reported variances only
-    sol = _Solution(list(range(aS.shape[1])), x, r, res, None, 0, False, math.nan, "compensated",
-                    path + "+minimum-norm", notes, var_rows=var_rows)
-    return sol
+    notes.append("minimum-norm solution with unit-length columns (truncated SVD of R; not refined)")
+    var_rows = (vt[:k] / sv[:k, None]) / cn[None, :]  # inverse-ok: squared column norms are reported variances only
+    return _Solution(list(range(aS.shape[1])), x, r, res, None, 0, False, math.nan, "compensated",
+                     path + "+minimum-norm", notes, var_rows=var_rows)
 
 
 def _blocked_solution(design: _Design, tol, policy, max_steps, refine, notes):
@@ -747,8 +753,9 @@ def fit_linear(
         Wahba, 1979) or leave-one-out cross-validation, both by closed forms
         through the SVD. See :func:`whiten.regression.ridge.fit_ridge`.
     standardize : bool
-        Ridge only: penalise the predictors scaled to unit (weighted) standard
-        deviation, so that ``lambda`` does not depend on their units. Coefficients
+        Ridge only: penalise the predictors scaled to unit (population, and for
+        WLS/GLS whitened) standard deviation ``sqrt(sum (x - mean)^2 / n)``, so that
+        ``lambda`` does not depend on their units. Coefficients
         are always reported in the original units.
     rank_policy : {"nan", "drop", "raise", "minimum-norm"}
         What to do when a column is (numerically) a linear combination of the columns
