@@ -143,10 +143,11 @@ class Factor:
 
     def __init__(self, lower: np.ndarray, health: FactorHealth, names: Sequence[str] | None = None,
                  matrix: np.ndarray | None = None):
-        lower = np.array(lower, dtype=np.float64, order="C", copy=True)
+        # one Fortran-ordered copy serves both users and LAPACK/BLAS (no second copy)
+        lower = np.array(lower, dtype=np.float64, order="F", copy=True)
         lower.setflags(write=False)
         self._lower = lower
-        self._lower_f = np.asfortranarray(lower)
+        self._lower_f = lower
         self._health = health
         self._names = list(names) if names is not None else None
         if self._names is not None and len(self._names) != lower.shape[0]:
@@ -335,6 +336,10 @@ class Factor:
         """
         arr, one = self._rows(x, "x")
         sh = None if shift is None else np.asarray(shift, dtype=np.float64).reshape(self.dim)
+        if one:  # one vector: a single triangular solve, no block machinery
+            v = arr[0] if sh is None else arr[0] - sh
+            z, _ = lapack.dtrtrs(self._lower_f, v, lower=1)
+            return float(z @ z)
         out = self._quad_checked(arr, sh)
         return float(out[0]) if one else out
 
