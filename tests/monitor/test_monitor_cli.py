@@ -50,7 +50,8 @@ def test_score_end_to_end(files, capsys, tmp_path):
     chart = tmp_path / "chart.png"
     code, stdout, err = _run(capsys, "score", str(d / "new.csv"), "--baseline", str(d / "model.json"),
                              "-o", str(out), "--chunksize", "130", "--chart", str(chart),
-                             "--index-column", "stamp", "--fdr", "0.05")
+                             "--index-column", "stamp", "--fdr", "0.05",
+                             "--contributions", str(tmp_path / "bars.png"))
     assert code == 0, err
     got = pd.read_csv(out, index_col="stamp", keep_default_na=False, na_values=[""])
     ref = score(b, new.set_index("stamp"), fdr=0.05)
@@ -63,11 +64,13 @@ def test_score_end_to_end(files, capsys, tmp_path):
     assert got.loc["s0007", "note"] == "no sensor observed: not scored"
     assert chart.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG file signature (PNG specification)
     assert mpimg.imread(chart).ndim == 3
+    assert (tmp_path / "bars.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert mpimg.imread(tmp_path / "bars.png").ndim == 3
     assert "scored 1000 rows" in stdout and "alarms at alpha=0.001" in stdout
     assert "row s0101" in stdout or "row s0100" in stdout  # a worst row named by its label
     assert "top sensors: bed_t" in stdout
     assert stdout.strip().splitlines()[-1].startswith("Caution: a statistical screen, not a protective function")
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["chart.png", "scores.csv"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["bars.png", "chart.png", "scores.csv"]
 
 
 def test_help_has_examples(capsys):
@@ -150,3 +153,13 @@ def test_limit_basis_says_when_the_exact_law_is_approximate():
     assert "row weights" in w.attrs["limit_basis"]
     known = score(whiten.fit_baseline(x, columns=cols, estimator="shrinkage"), x[:2], phase="known")
     assert "approximate" not in known.attrs["limit_basis"]
+
+
+def test_chart_time_axis_from_index_column():
+    from whiten.cli.score import _time_axis
+
+    t = _time_axis([np.array(["2026-03-02T00:00", "2026-03-02T00:05"], dtype=object)])
+    assert t.dtype.kind == "M" and (t[1] - t[0]) == np.timedelta64(5, "m")  # pandas.to_datetime parses ISO 8601
+    assert np.array_equal(_time_axis([np.array([3.0, 4.5])]), [3.0, 4.5])
+    assert _time_axis([np.array(["s0001", "s0002"], dtype=object)]) is None
+    assert _time_axis([]) is None

@@ -54,7 +54,10 @@ def add_parser(sub) -> None:
     p.add_argument("--fdr", type=float, default=None, metavar="Q",
                    help="also flag rows by Benjamini-Hochberg at false-discovery rate Q across the file "
                         "(reads the file twice)")
-    p.add_argument("--chart", metavar="FILE.png", help="write a control chart of d2 with the limit and alarms")
+    p.add_argument("--chart", metavar="FILE.png", help="write a control chart of d2 with the limit and alarms "
+                   "(x axis: the --index-column when it holds times or numbers, else the row number)")
+    p.add_argument("--contributions", metavar="FILE.png",
+                   help="write bar charts of the drop contributions for the worst rows")
     p.add_argument("--index-column", metavar="COL", help="column that labels rows (e.g. a timestamp); kept in the output")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
@@ -100,6 +103,10 @@ def run(args) -> int:
         check_writable(args.chart, force=args.force, what="chart")
         if Path(args.chart).resolve() == out.resolve():
             raise InputError("--chart and -o name the same file")
+    if args.contributions:
+        check_writable(args.contributions, force=args.force, what="chart")
+        if Path(args.contributions).resolve() in {out.resolve(), Path(args.chart or out).resolve()}:
+            raise InputError("--contributions names the same file as -o or --chart")
     if getattr(args, "report", None):
         check_writable(args.report, force=args.force, what="report")
     baseline = load_baseline(model_path)
@@ -119,7 +126,7 @@ def run(args) -> int:
 
     n_rows = n_alarm = n_fdr = n_partial = n_none = 0
     worst: list[tuple[float, int, str, float, list[tuple[str, float]]]] = []
-    d2_all, lim_all, alarm_all = [], [], []
+    d2_all, lim_all, alarm_all, labels = [], [], [], []
     drop_cols = [f"drop:{c}" for c in scorer.columns]
     with atomic_open(out, "w", force=args.force, what="output") as fh:
         first = True
@@ -153,6 +160,8 @@ def run(args) -> int:
             d2_all.append(d2)
             lim_all.append(cols["limit"])
             alarm_all.append(cols["alarm"])
+            if args.chart and args.index_column is not None:
+                labels.append(np.asarray(idx))
             # keep the few worst rows (by p-value, then d2) with their top sensors
             scored = np.flatnonzero(~np.isnan(cols["p_value"]))
             if scored.size:
@@ -162,7 +171,8 @@ def run(args) -> int:
                     row = np.nan_to_num(drops[i], nan=-np.inf)
                     top = np.argsort(-row)[:3]
                     tops = [(scorer.columns[j], float(drops[i, j])) for j in top if np.isfinite(row[j])]
-                    item = (-float(cols["p_value"][i]), float(d2[i]), n_rows + int(i), str(idx[i]), tops)
+                    item = (-float(cols["p_value"][i]), float(d2[i]), n_rows + int(i), str(idx[i]), tops,
+                            frame.iloc[int(i)] if args.contributions else None)
                     if len(worst) < _WORST:
                         heapq.heappush(worst, item)
                     else:
@@ -185,7 +195,7 @@ def run(args) -> int:
         lines.append(f"columns not in the model (ignored): {', '.join(ignored)}")
     if worst:
         lines.append("worst rows (drop contribution: d2 lost without the sensor):")
-        for negp, d2v, _, lab, tops in sorted(worst, key=lambda t: (-t[0], -t[1])):
+        for negp, d2v, _, lab, tops, _ in sorted(worst, key=lambda t: (-t[0], -t[1])):
             top_txt = ", ".join(f"{s} {v:.3g}" for s, v in tops)
             lines.append(f"  row {lab}: d2 {d2v:.4g}, p {-negp:.2g}; top sensors: {top_txt}")
     lines.append(f"scores written to {out}")
@@ -195,9 +205,20 @@ def run(args) -> int:
         frame = pd.DataFrame({"d2": np.concatenate(d2_all), "limit": np.concatenate(lim_all),
                               "alarm": np.concatenate(alarm_all)})
         frame.attrs.update({"alpha": scorer.alpha, "phase": scorer.phase})
-        distance_chart(frame, args.chart, force=args.force,
+        distance_chart(frame, args.chart, force=args.force, time=_time_axis(labels),
                        title=f"Squared Mahalanobis distance per row: {os.path.basename(str(args.data))}")
         lines.append(f"chart written to {args.chart}")
+    if args.contributions:
+        from ..monitor.charts import contribution_chart
+
+        rows = [t[5] for t in sorted(worst, key=lambda t: (-t[0], -t[1]))[:4]]
+        if rows:
+            pick = pd.DataFrame(rows)
+            pick.attrs.update({"alpha": scorer.alpha, "phase": scorer.phase})
+            contribution_chart(pick, args.contributions, rows=len(rows), force=args.force)
+            lines.append(f"contribution chart written to {args.contributions}")
+        else:
+            lines.append("no row could be scored: no contribution chart written")
     if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report)
         from ..report import cli_provenance, monitoring_report
 
@@ -208,6 +229,30 @@ def run(args) -> int:
                           ).write(args.report, force=args.force)
         lines.append(f"report written to {args.report}")
     lines.append(CAUTION)
-    print("\n".join(lines))
-    sys.stdout.flush()
+    try:
+        print("\n".join(lines))
+        sys.stdout.flush()
+    except BrokenPipeError:  # e.g. `whiten score ... | head`: the files are written; stop quietly
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
     return 0
+
+
+def _time_axis(labels):
+    """x positions for the chart from the index column: times or numbers, else None (row number)."""
+    if not labels:
+        return None
+    import pandas as pd
+
+    lab = np.concatenate(labels)
+    if lab.dtype.kind in "iuf":
+        return lab
+    import warnings
+
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # pandas' format-inference notice is not the user's concern
+            t = pd.to_datetime(pd.Series(lab), errors="raise")
+    except (ValueError, TypeError, OverflowError):
+        return None
+    return t.to_numpy()
