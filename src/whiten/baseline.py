@@ -53,8 +53,10 @@ class BaselineHealth:
         Jitter relative to the mean diagonal.
     path : str
         Numerical route of the scatter factor: ``"gram"`` (shifted Gram
-        matrix + Cholesky) or ``"tsqr"`` (tall-skinny QR of the centred data);
-        ``"updated"`` after :meth:`Baseline.update` / :meth:`Baseline.downdate`.
+        matrix + Cholesky) or ``"tsqr"`` (tall-skinny QR of the centred data;
+        also the route of ``"shrinkage"``); ``"mcd"`` for ``"robust"`` (the final
+        factor is a QR of the retained rows); ``"updated"`` after
+        :meth:`Baseline.update` / :meth:`Baseline.downdate`.
     gram_digits_lost : float or None
         Digits the Gram route's factor would lose (what made the choice);
         None when the Gram route did not run.
@@ -128,7 +130,8 @@ class _Source:
         elif _is_frame(data):
             self._init_frame(data, columns, index_column)
         elif isinstance(data, np.ndarray) or (isinstance(data, (list, tuple)) and (
-                len(data) == 0 or not _is_frame(data[0]))):
+                len(data) == 0 or not (_is_frame(data[0]) or (
+                    isinstance(data[0], np.ndarray) and data[0].ndim == 2)))):
             self._init_array(data, columns, index_column)
         elif isinstance(data, Iterable):
             self._init_chunks(data, columns, index_column)
@@ -818,7 +821,13 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     ``whiten.get_options().gram_digits_max`` digits (default 6), the factor is
     recomputed by a second pass from a tall-skinny QR of the centred data
     (``2 N p^2`` flops), whose error grows with cond(X) rather than
-    cond(X)^2; ``health.path`` says which route ran.
+    cond(X)^2; ``health.path`` says which route ran. A one-shot iterator
+    cannot be read twice, so ``"auto"`` takes the QR route from the start.
+
+    Memory: ``"sample"`` holds one chunk and one block at a time.
+    ``"shrinkage"`` (Ledoit-Wolf) reads the data twice, keeping the chunks of
+    a one-shot iterator in memory for the second pass. ``"robust"`` holds all
+    complete rows in memory (the MCD compares every row with every subset).
 
     Examples
     --------

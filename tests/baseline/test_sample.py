@@ -209,3 +209,27 @@ def test_input_not_modified_and_float32_accepted():
     assert np.array_equal(x, keep)
     b32 = whiten.fit_baseline(x.astype(np.float32))
     assert _rel(b32.cov, np.cov(x.astype(np.float32).astype(np.float64), rowvar=False)) < 1e-13
+
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=25, deadline=None)
+@given(cuts=st.lists(st.integers(1, 299), max_size=8, unique=True), kind=st.sampled_from(["gram", "qr"]),
+       offset=st.sampled_from([0.0, 1e3, 1e6]))
+def test_any_chunking_gives_the_same_state(cuts, kind, offset):
+    x = _sensor_rows(300, 4, seed=15, offset=offset)
+    edges = [0] + sorted(cuts) + [300]
+    shift = x[: edges[1]].mean(axis=0)
+    st_ = reduce_states(block_state(x[a:b], None, shift, kind) for a, b in zip(edges[:-1], edges[1:]))
+    # reference: numpy.cov * (n - 1) and numpy.mean of all rows; exact merges -> rounding only
+    assert _rel(st_.scatter(), np.cov(x, rowvar=False) * 299) < 1e-12
+    assert _rel(st_.location, x.mean(axis=0)) < 1e-14
+
+
+def test_list_of_array_chunks():
+    x = _sensor_rows(90, 3, seed=16)
+    b = whiten.fit_baseline([x[:30], x[30:60], x[60:]], columns=["a", "b", "c"])
+    assert b.columns == ["a", "b", "c"] and b.health.n_chunks == 3
+    assert _rel(b.cov, np.cov(x, rowvar=False)) < 1e-13  # numpy.cov
