@@ -66,7 +66,8 @@ def test_chart_errors(tmp_path, scored):
         charts.distance_chart(s, tmp_path / "x.png", time=[1, 2])
 
 
-@pytest.mark.parametrize("module", ["whiten.monitor.limits", "whiten.monitor.fdr", "whiten.monitor.score"])
+@pytest.mark.parametrize("module", ["whiten.monitor.limits", "whiten.monitor.fdr", "whiten.monitor.score",
+                                    "whiten.monitor.contributions", "whiten.monitor.charts"])
 def test_docstring_examples(module):
     res = doctest.testmod(importlib.import_module(module), optionflags=doctest.NORMALIZE_WHITESPACE)
     assert res.attempted > 0 and res.failed == 0

@@ -16,7 +16,8 @@ EPILOG = """\
 examples:
   whiten score week32.csv --baseline pump_baseline.json -o week32_scores.csv
   whiten score week32.csv --baseline pump_baseline.json -o scores.csv \\
-      --index-column timestamp --alpha 0.0001 --fdr 0.05 --chart week32.png
+      --index-column timestamp --alpha 0.0001 --fdr 0.05 --chart week32.png \\
+      --contributions week32_why.png
 
 The output has one line per input row, in input order: d2 (squared
 Mahalanobis distance), p_value, limit, alarm, n_observed, top_contributor,

@@ -45,11 +45,33 @@ def whitened_and_drop(factor: Factor, d: np.ndarray) -> tuple[np.ndarray, np.nda
 
 
 def drop_terms(factor: Factor, d: np.ndarray) -> np.ndarray:
-    """``d2 - d2_without_j`` for every row of centred ``d`` (N, k) and sensor j."""
+    """``d2 - d2_without_j`` for every row of centred ``d`` (N, k) and sensor j.
+
+    Examples
+    --------
+    >>> import numpy as np, whiten
+    >>> from whiten.monitor import drop_terms
+    >>> s = np.array([[1.0, 0.9], [0.9, 1.0]])
+    >>> d = np.array([[1.0, -1.0]])
+    >>> full = whiten.cholesky(s).quad(d[0])
+    >>> # leaving out sensor 0 leaves d2 = d_1^2 / s_11 = 1
+    >>> bool(np.isclose(drop_terms(whiten.cholesky(s), d)[0, 0], full - 1.0))
+    True
+    """
     return whitened_and_drop(factor, d)[1]
 
 
 def chain_terms(factor: Factor, d: np.ndarray) -> np.ndarray:
-    """Squared whitened components ``(L^{-1} d)_k^2`` (columns in the factor's order); they sum to d2."""
+    """Squared whitened components ``(L^{-1} d)_k^2`` (columns in the factor's order); they sum to d2.
+
+    Examples
+    --------
+    >>> import numpy as np, whiten
+    >>> from whiten.monitor import chain_terms
+    >>> f = whiten.cholesky(np.array([[2.0, 0.6, 0.1], [0.6, 1.0, 0.3], [0.1, 0.3, 0.5]]))
+    >>> d = np.array([[0.5, -1.0, 2.0]])
+    >>> bool(np.isclose(chain_terms(f, d).sum(), f.quad(d[0])))
+    True
+    """
     z = factor.whiten(d)
     return z * z
