@@ -30,7 +30,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["LONGDOUBLE_IS_WIDER", "extended_kind", "residual", "gradient"]
+__all__ = ["LONGDOUBLE_IS_WIDER", "extended_kind", "residual", "gradient", "ExtendedProducts"]
 
 LONGDOUBLE_IS_WIDER = bool(np.finfo(np.longdouble).eps < np.finfo(np.float64).eps)
 
@@ -115,3 +115,41 @@ def gradient(a: np.ndarray, r: np.ndarray, kind: str) -> np.ndarray:
         return (a.T.astype(np.longdouble) @ r.astype(np.longdouble)).astype(np.float64)
     prod, perr = _two_prod(a.T, r[None, :])
     return _sum2_columns(prod, perr)
+
+
+class ExtendedProducts:
+    """``b - r - A x`` and ``A^T r`` in extended precision for one fixed matrix A.
+
+    Refinement applies the same A many times; the exact splitting of its
+    entries (Dekker, 1971) or its conversion to ``longdouble`` is done once
+    here instead of at every step.
+    """
+
+    def __init__(self, a: np.ndarray, kind: str):
+        self.kind = extended_kind(kind)
+        self.a = a
+        if self.kind == "longdouble":
+            self.a_ext = a.astype(np.longdouble)
+        else:
+            self.a_hi, self.a_lo = _split(a)
+
+    def _products(self, a, ahi, alo, v):
+        p = a * v
+        vh, vl = _split(v)
+        return p, alo * vl - (((p - ahi * vh) - alo * vh) - ahi * vl)
+
+    def residual(self, x: np.ndarray, b: np.ndarray, r: np.ndarray | None) -> np.ndarray:
+        if self.kind == "longdouble":
+            out = b.astype(np.longdouble) - self.a_ext @ x.astype(np.longdouble)
+            if r is not None:
+                out -= r.astype(np.longdouble)
+            return out.astype(np.float64)
+        prod, perr = self._products(self.a, self.a_hi, self.a_lo, -x[None, :])
+        cols = [b[:, None], prod] if r is None else [b[:, None], -r[:, None], prod]
+        return _sum2_columns(np.concatenate(cols, axis=1), perr)
+
+    def gradient(self, r: np.ndarray) -> np.ndarray:
+        if self.kind == "longdouble":
+            return (self.a_ext.T @ r.astype(np.longdouble)).astype(np.float64)
+        prod, perr = self._products(self.a.T, self.a_hi.T, self.a_lo.T, r[None, :])
+        return _sum2_columns(prod, perr)

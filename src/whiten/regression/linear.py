@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from typing import Any, Sequence
+from typing import Any
 
 import numpy as np
 from scipy import stats
@@ -536,12 +536,13 @@ class _Solution:
 def _refine_dense(a, b, q, r, kind, max_steps):
     """Björck (1967) refinement of the augmented system with thin Q; returns x, resid, steps, conv, corr."""
     x = tri_solve(r, q.T @ b)
-    res = _extended.residual(a, x, b, None, kind)
+    ops = _extended.ExtendedProducts(a, kind)
+    res = ops.residual(x, b, None)
     steps, conv, corr = 0, False, math.nan
     prev = math.inf
     for _ in range(max_steps):
-        f = _extended.residual(a, x, b, res, kind)
-        g = -_extended.gradient(a, res, kind)
+        f = ops.residual(x, b, res)
+        g = -ops.gradient(res)
         h = tri_solve(r, g, trans=True)
         d = q.T @ f
         dx = tri_solve(r, d - h)
@@ -891,8 +892,6 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
     se = sigma * np.sqrt(var_s) * sc
     # explained sum of squares from R x = Q^T b (no cancellation against the total)
     rx = sol.r @ sol.x if sol.var_rows is None else None
-    if sol.var_rows is not None:
-        fitted_w = None
     if design.intercept:
         if rx is not None:
             ess = float(rx[1:] @ rx[1:])

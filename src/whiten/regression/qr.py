@@ -38,6 +38,16 @@ def pow2_column_scale(norms: np.ndarray) -> np.ndarray:
     return np.exp2(-np.round(np.log2(safe)))
 
 
+def _geqrf(a: np.ndarray, overwrite: bool):
+    """LAPACK dgeqrf with the optimal workspace (the wrappers' default is the unblocked minimum)."""
+    _, _, work, info = lapack.dgeqrf(a, lwork=-1)
+    lwork = max(1, int(work[0])) if info == 0 else max(1, a.shape[1])
+    qr, tau, _, info = lapack.dgeqrf(a, lwork=lwork, overwrite_a=1 if overwrite else 0)
+    if info != 0:  # pragma: no cover - invalid arguments only
+        raise RuntimeError(f"dgeqrf info={info}")
+    return qr, tau
+
+
 def householder_thin(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Thin Householder QR ``a = q @ r`` (q: (n, p) orthonormal columns, r: (p, p) upper).
 
@@ -45,11 +55,12 @@ def householder_thin(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     forming the thin Q).
     """
     n, p = a.shape
-    qr, tau, _, info = lapack.dgeqrf(np.asfortranarray(a), overwrite_a=0)
-    if info != 0:  # pragma: no cover - invalid arguments only
-        raise RuntimeError(f"dgeqrf info={info}")
+    fa = np.asfortranarray(a)
+    qr, tau = _geqrf(fa, overwrite=fa is not a)
     r = np.triu(qr[:p, :p])
-    q, _, info = lapack.dorgqr(qr[:, :p], tau, overwrite_a=1)
+    _, work, info = lapack.dorgqr(qr[:, :p], tau, lwork=-1)
+    lwork = max(1, int(work[0])) if info == 0 else max(1, p)
+    q, _, info = lapack.dorgqr(qr[:, :p], tau, lwork=lwork, overwrite_a=1)
     if info != 0:  # pragma: no cover
         raise RuntimeError(f"dorgqr info={info}")
     return q, r
@@ -58,9 +69,7 @@ def householder_thin(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 def _r_of(block: np.ndarray) -> np.ndarray:
     """Upper-triangular (or trapezoidal) R of a block, shape (min(m, p), p)."""
     m, p = block.shape
-    qr, _, _, info = lapack.dgeqrf(block, overwrite_a=1)
-    if info != 0:  # pragma: no cover
-        raise RuntimeError(f"dgeqrf info={info}")
+    qr, _ = _geqrf(block, overwrite=True)
     k = min(m, p)
     return np.triu(qr[:k, :])
 
