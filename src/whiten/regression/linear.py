@@ -16,11 +16,17 @@ Problems"):
    (Björck, 1967) with the residuals in extended precision;
 5. standard errors from triangular solves with R.
 
-For many rows (more than ``2e6`` design cells) R comes from a row-blocked
-tall-skinny QR with bounded memory, and refinement uses the corrected
-semi-normal equations (Björck, 1987) -- accurate while the scaled condition
-number is below ``1e5``; above that the fit falls back to the dense
-Householder route and says so in ``health.path``.
+For many rows (more than ``2e6`` design cells) the data are read in row
+blocks with bounded memory: R of ``[A y]`` comes from CholeskyQR2 (two BLAS-3
+passes; Fukaya et al., 2014) when the equilibrated Gram matrix is well enough
+conditioned (rcond > 1e-12), otherwise from a Householder tall-skinny QR
+(Demmel et al., 2012). Refinement there uses the corrected semi-normal
+equations (Björck, 1987) with ``numpy.longdouble`` residuals -- accurate while
+the scaled condition number is below ``1e5``; above that the fit falls back to
+the dense Householder route and says so in ``health.path``. With
+``refine="auto"`` the many-row path refines only when fewer than 8 digits would
+otherwise survive (the statistical uncertainty of a fit on that many rows is far
+larger than such rounding), and says so in ``health.notes``.
 """
 
 from __future__ import annotations
@@ -769,10 +775,11 @@ def fit_linear(
         Default ``10 * max(n, p) * eps``.
     method : {"auto", "householder", "blocked"}
         ``"auto"``: Householder with an explicit thin Q up to 2e6 design cells,
-        the blocked tall-skinny path beyond (and always Householder for GLS).
+        the blocked many-row path beyond (CholeskyQR2, or Householder TSQR when
+        ill-conditioned; always Householder for GLS).
     refine : {"auto", True, False}
         Iterative refinement. ``"auto"`` refines on the Householder path always and
-        on the blocked path unless the error bound already promises 13 digits.
+        on the blocked path only when the error bound promises fewer than 8 digits.
     ridge_grid : array_like, optional
         Penalties to try for ``ridge="gcv"``/``"loocv"``.
 
@@ -799,9 +806,9 @@ def fit_linear(
     Notes
     -----
     Steps and costs (n rows, p coefficients): whitening O(n p) (O(n^2 p) for a dense
-    error covariance); QR 2 n p^2 flops (4 n p^2 with the thin Q); each refinement step
-    O(n p) in compensated arithmetic (Ogita, Rump & Oishi, 2005); standard errors
-    O(p^3) by a triangular solve. Collinearity diagnostics use the SVD of the p x p R.
+    error covariance); QR 4 n p^2 flops with the thin Q (3 n p^2 for CholeskyQR2 on
+    the many-row path); each refinement step O(n p) in compensated arithmetic (Ogita,
+    Rump & Oishi, 2005); standard errors O(p^3) by a triangular solve. Collinearity diagnostics use the SVD of the p x p R.
     No n x n matrix is formed except the user's ``error_cov``.
 
     Examples
