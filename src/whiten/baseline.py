@@ -12,7 +12,6 @@ from __future__ import annotations
 import dataclasses
 import math
 import os
-import warnings
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
 import numpy as np

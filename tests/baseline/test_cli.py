@@ -107,3 +107,18 @@ def test_help_has_examples(capsys):
             main([cmd, "--help"])
         assert e.value.code == 0
         assert "examples:" in capsys.readouterr().out
+
+
+def test_weight_column(tmp_path, table, capsys):
+    f, df = table
+    w = (np.arange(len(df)) % 3).astype(int)
+    g = tmp_path / "weighted.csv"
+    df.assign(count=w).to_csv(g, index=False)
+    out = tmp_path / "w.json"
+    assert main(["baseline", str(g), "-o", str(out), "--columns", "supply,return,flow", "--index-column",
+                 "stamp", "--weight-column", "count"]) == 0
+    assert "divisor sum(w) - 1" in capsys.readouterr().out
+    b = whiten.load_baseline(out)
+    # numpy.cov with integer frequency weights
+    ref = np.cov(df[["supply", "return", "flow"]].to_numpy(), rowvar=False, fweights=w)
+    np.testing.assert_allclose(b.cov, ref, rtol=1e-12)

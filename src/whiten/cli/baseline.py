@@ -13,6 +13,7 @@ examples:
   whiten baseline healthy.parquet -o loop.json --columns supply,return,flow \\
       --index-column timestamp --chunksize 50000
   whiten baseline few_rows.csv -o loop.json --estimator shrinkage --force
+  whiten baseline counts.csv -o loop.json --weight-column n_seen
 
 The model file is JSON (format whiten.baseline/1) with a SHA-256 checksum;
 `whiten inspect MODEL.json` describes it and `whiten score` uses it. Large
@@ -38,6 +39,9 @@ def add_parser(sub) -> None:
                    help="intensity rule for --estimator shrinkage (default ledoit-wolf)")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
     p.add_argument("--index-column", metavar="COL", help="column that labels rows (e.g. a timestamp)")
+    p.add_argument("--weight-column", metavar="COL",
+                   help="column of frequency weights (a weight of 3 counts a row three times); sample "
+                        "estimator only")
     p.add_argument("--missing", choices=["drop", "error"], default="drop",
                    help="incomplete rows: drop and count them (default) or stop at the first")
     p.add_argument("--force", action="store_true", help="replace the model file if it exists")
@@ -94,7 +98,7 @@ def run(args) -> int:
     check_writable(args.output, force=args.force, what="model")  # before the work, not after
     b = fit_baseline(args.data, estimator=args.estimator, columns=_columns(args.columns),
                      chunksize=args.chunksize, index_column=args.index_column, missing=args.missing,
-                     shrinkage=args.shrinkage)
+                     shrinkage=args.shrinkage, weights=args.weight_column)
     path = b.save(args.output, force=args.force)
     print(f"baseline from {args.data}")
     for line in health_lines(b):
