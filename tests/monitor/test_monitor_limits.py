@@ -121,3 +121,16 @@ def test_guards():
     b.n = 3
     with pytest.raises(InputError, match="m=3, p=3"):
         score(b, np.zeros((1, 3)))
+
+
+def test_reference_phase_notes_rows_beyond_the_bound():
+    rng = np.random.default_rng(21)
+    x = rng.standard_normal((30, 2))
+    b = standin(x, ["a", "b"])
+    far = np.array([[40.0, -40.0]])
+    s = score(b, far, phase="reference")
+    # (m-1)^2/m is the largest T² a reference row can take (Tracy, Young & Mason 1992)
+    assert s["d2"].iloc[0] > 29 ** 2 / 30
+    assert s["p_value"].iloc[0] == 0.0 and s["alarm"].iloc[0]
+    assert "largest a reference row can reach" in s["note"].iloc[0]
+    assert score(b, x, phase="reference")["note"].eq("").all()

@@ -198,6 +198,13 @@ class Scorer:
             else:
                 gone = [self.columns[j] for j in np.flatnonzero(mask[i])]
                 note[i] = f"scored on {nobs[i]} of {p} sensors; missing {', '.join(gone)}"
+        if self.phase == "reference":
+            # a reference row cannot exceed (m-1)^2/m (Tracy, Young & Mason 1992)
+            bound = (self.m - 1.0) ** 2 / self.m
+            for i in np.flatnonzero(d2 > bound * (1.0 + 1e-12)):
+                extra = (f"d2 above {bound:.6g}, the largest a reference row can reach: "
+                         "is this row from the reference set? (use phase='new' for new rows)")
+                note[i] = f"{note[i]}; {extra}" if note[i] else extra
         out: dict[str, np.ndarray] = {
             "d2": d2, "p_value": pval, "limit": limit, "alarm": alarm, "n_observed": nobs,
             "top_contributor": top, "note": note,
