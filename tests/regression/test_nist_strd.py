@@ -88,3 +88,26 @@ def test_hard_polynomial_beyond_the_folder():
     assert fit.condition_number > 1e8
     assert lre(fit.coef, exact).min() >= 11
     assert fit.health.refinement_steps >= 1 and fit.health.digits_solved > 12
+
+
+@pytest.mark.parametrize("name", ["Longley", "Wampler1", "Pontius"])
+def test_many_row_path_on_repeated_sets(name):
+    """The blocked path on a NIST set whose rows are repeated k times: the least-squares solution
+    is unchanged (so NIST's certified coefficients still apply, LRE >= 9), and the standard errors
+    become se * sqrt((n - p) / (k n - p)) (from RSS_k = k RSS and A_k^T A_k = k A^T A: elementary
+    algebra on the textbook formula se^2 = RSS / (n - p) * diag((A^T A)^-1))."""
+    x, y, cert = load(name)
+    k = 300
+    xk = pd.concat([x] * k, ignore_index=True)
+    yk = pd.concat([y] * k, ignore_index=True)
+    with whiten.options(block_rows=1000), warnings.catch_warnings():
+        warnings.simplefilter("error")
+        fit = whiten.fit_linear(xk, yk, intercept=cert["intercept"], method="blocked", refine=True)
+    assert fit.health.path.startswith("blocked")
+    assert lre(fit.coef, cert["coef"]).min() >= 9
+    n, p = cert["n"], len(cert["coef"])
+    if cert["rsd"] != 0:
+        se_k = np.asarray(cert["se"]) * math.sqrt((n - p) / (k * n - p))
+        assert lre(fit.stderr, se_k).min() >= 9
+    else:
+        assert fit.residual_sd <= 1e-13 * float(np.abs(y).max())
