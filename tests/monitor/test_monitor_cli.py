@@ -163,3 +163,15 @@ def test_chart_time_axis_from_index_column():
     assert np.array_equal(_time_axis([np.array([3.0, 4.5])]), [3.0, 4.5])
     assert _time_axis([np.array(["s0001", "s0002"], dtype=object)]) is None
     assert _time_axis([]) is None
+
+
+def test_parquet_input_matches_csv(files, capsys, tmp_path):
+    pytest.importorskip("pyarrow")
+    d, b, new = files
+    new.to_parquet(tmp_path / "new.parquet", index=False)
+    code, _, err = _run(capsys, "score", str(tmp_path / "new.parquet"), "--baseline", str(d / "model.json"),
+                        "-o", str(tmp_path / "p.csv"), "--chunksize", "333")
+    assert code == 0, err
+    got = pd.read_csv(tmp_path / "p.csv", index_col="row")
+    ref = score(b, new.drop(columns="stamp"))
+    assert np.allclose(got["d2"], ref["d2"], rtol=1e-14, equal_nan=True)
