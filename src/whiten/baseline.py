@@ -339,6 +339,7 @@ class _Cleaner:
         self.first_dropped = None
         self.n_blocks = 0
         names = self.source.names
+        self.col_missing = np.zeros(len(names), dtype=np.int64)
         for vals, wcol, pos, lab in self.source.raw_blocks():
             self.n_blocks += 1
             m = vals.shape[0]
@@ -365,6 +366,7 @@ class _Cleaner:
                     raise InputError(f"data: {where}, column {names[c]!r} is {vals[r, c]}; every value must be "
                                      "a finite number (a missing value may be NaN)")
                 nan = np.isnan(vals)
+                self.col_missing += nan.sum(axis=0)
                 bad = nan.any(axis=1)
                 if not bad.any():
                     bad = None
@@ -386,6 +388,14 @@ class _Cleaner:
             yield Block(vals, w, pos, lab)
         if self.weights is not None and self.n_read != self.weights.shape[0]:
             raise InputError(f"weights: {self.weights.shape[0]} entries for {self.n_read} rows of data")
+        if self.n_read and self.n_dropped == self.n_read:
+            empty = [names[j] for j in range(len(names)) if self.col_missing[j] == self.n_read]
+            worst = ", ".join(f"{names[j]!r} ({int(self.col_missing[j])})"
+                              for j in np.argsort(-self.col_missing)[:3] if self.col_missing[j])
+            raise InputError(
+                f"every one of the {self.n_read} rows has a missing value, so no complete row is left"
+                + (f"; column(s) {empty} are missing in every row" if empty else f"; most missing: {worst}")
+                + ". Leave such columns out with columns=[...]")
 
     def report(self) -> None:
         if self.n_dropped:

@@ -112,3 +112,16 @@ def test_to_frame_summary():
         res = np.linalg.lstsq(others, df[c].to_numpy(), rcond=None)[1][0]
         own = res / ((df[c] - df[c].mean()) ** 2).sum()
         assert t.loc[c, "own_share"] == pytest.approx(own, rel=1e-10)
+
+
+def test_parquet_errors(tmp_path):
+    pytest.importorskip("pyarrow")
+    df = pd.DataFrame({"a": [1.0, 2.0, 3.0], "b": ["4", "5", "x6"]})
+    df.to_parquet(tmp_path / "t.parquet", index=False)
+    with pytest.raises(whiten.InputError, match=r"column 'b' is not numeric: row 2 .* 'x6'"):
+        whiten.fit_baseline(tmp_path / "t.parquet")
+    with pytest.raises(whiten.InputError, match=r"missing column\(s\) \['c'\]"):
+        whiten.fit_baseline(tmp_path / "t.parquet", columns=["a", "c"])
+    (tmp_path / "bad.parquet").write_text("not parquet")
+    with pytest.raises(whiten.InputError, match="not a readable Parquet file"):
+        whiten.fit_baseline(tmp_path / "bad.parquet")
