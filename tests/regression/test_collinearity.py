@@ -144,6 +144,16 @@ def test_bad_inputs_are_named():
         whiten.fit_linear(np.ones((3, 3)) + np.eye(3), [1, 2, 3])
     with pytest.raises(InputError, match="weights or error_cov, not both"):
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 4], weights=np.ones(4), error_cov=np.eye(4))
+    with pytest.raises(InputError, match=r"error_cov: expected shape \(4, 4\)"):
+        whiten.fit_linear(x.fillna(0), [1, 2, 3, 4], error_cov=np.eye(3))
+    with pytest.raises(whiten.NotPositiveDefiniteError):
+        whiten.fit_linear(x.fillna(0), [1, 2, 3, 4], error_cov=np.diag([1.0, -1.0, 1.0, 1.0]))
+    with pytest.raises(InputError, match="interval: choose None, 'confidence' or 'prediction'"):
+        whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).predict([1.0, 2.0], interval="band")
+    with pytest.raises(InputError, match=r"column mismatch with the model: missing \[.b.\]"):
+        whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).predict(pd.DataFrame({"a": [1.0]}))
+    with pytest.raises(InputError, match="reserves for the intercept"):
+        whiten.fit_linear(pd.DataFrame({"(intercept)": [1.0, 2, 3], "b": [1.0, 0, 2]}), [1, 2, 3])
     with pytest.raises(InputError, match="level: must be strictly between 0 and 1"):
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).conf_int(95)
 

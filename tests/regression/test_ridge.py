@@ -100,3 +100,18 @@ def test_ridge_errors():
         whiten.fit_linear(x, y, standardize=True)
     with pytest.warns(whiten.NumericalWarning, match="end of the grid"):
         whiten.fit_linear(x, y, ridge="gcv", ridge_grid=[1e6, 1e7])
+
+
+def test_weighted_ridge_equals_augmented_least_squares():
+    """With weights, the definition min sum w_i (y_i - b0 - x_i b)^2 + lam ||b||^2 is one least-squares
+    problem on [sqrt(w) [1, X]; [0, sqrt(lam) I]] (solved here by numpy lstsq, no centring trick)."""
+    x, y = kiln(seed=8, n=30)
+    xv = x.to_numpy()
+    w = np.random.default_rng(1).uniform(0.2, 5.0, len(y))
+    lam = 7.0
+    top = np.sqrt(w)[:, None] * np.column_stack([np.ones(len(y)), xv])
+    bottom = np.column_stack([np.zeros((3, 1)), np.sqrt(lam) * np.eye(3)])
+    ref = np.linalg.lstsq(np.vstack([top, bottom]), np.concatenate([np.sqrt(w) * y, np.zeros(3)]), rcond=None)[0]
+    fit = whiten.fit_linear(x, y, weights=w, ridge=lam)
+    np.testing.assert_allclose(fit.coef, ref, rtol=1e-9)
+    assert fit.weighted == "wls"

@@ -276,6 +276,13 @@ class LinearFit:
     _design: Any = dataclasses.field(default=None, repr=False)
     _cov_rows: np.ndarray | None = dataclasses.field(default=None, repr=False)
 
+    def __repr__(self) -> str:
+        h = self.health
+        return (f"LinearFit(nobs={self.nobs}, rank={self.rank}/{h.columns}, r_squared={self.r_squared:.6g}, "
+                f"residual_sd={self.residual_sd:.6g}, condition_number={h.condition_number:.3g}, "
+                f"digits_trusted={h.digits_trusted:.1f}, digits_solved={h.digits_solved:.1f}, path={h.path!r}"
+                + (f", ridge={self.ridge.penalty:.4g}" if self.ridge is not None else "") + ")")
+
     # ------------------------------------------------------------ simple views
     @property
     def condition_number(self) -> float:
