@@ -67,6 +67,7 @@ def test_score_end_to_end(files, capsys, tmp_path):
     assert (tmp_path / "bars.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert mpimg.imread(tmp_path / "bars.png").ndim == 3
     assert "scored 1000 rows" in stdout and "alarms at alpha=0.001" in stdout
+    assert "significant digits" in stdout
     assert "row s0101" in stdout or "row s0100" in stdout  # a worst row named by its label
     assert "top sensors: bed_t" in stdout
     assert stdout.strip().splitlines()[-1].startswith("Caution: a statistical screen, not a protective function")

@@ -159,7 +159,10 @@ def test_missing_sensor_rows(setup):
 def test_inputs(setup, tmp_path):
     b, new, mu, cov, kappa = setup
     df = pd.DataFrame(new[:5], columns=COLS)
+    arr = new[:5].copy()
     base = score(b, df)
+    score(b, arr)
+    assert np.array_equal(arr, new[:5])  # inputs are never modified
     # columns matched by name: reordered and extra columns are fine
     shuffled = df[COLS[::-1]].assign(stamp=np.arange(5))
     assert np.allclose(score(b, shuffled)["d2"], base["d2"], rtol=1e-14)

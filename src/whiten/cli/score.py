@@ -184,6 +184,8 @@ def run(args) -> int:
         f"scored {n_rows} rows of {args.data} against {args.baseline} "
         f"({scorer.p} sensors, {scorer.m} reference rows, phase {scorer.phase!r})",
         f"limit: {scorer.limit_basis}",
+        f"model accuracy: distances trusted to about {scorer.factor.health.digits_trusted:.0f} significant "
+        f"digits (jitter {scorer.factor.health.jitter:g})",
         f"alarms at alpha={scorer.alpha:g}: {n_alarm} ({100.0 * n_alarm / max(n_rows, 1):.2f}%); "
         f"about {scorer.alpha * (n_rows - n_none):.1f} expected by chance if all rows were healthy",
     ]
