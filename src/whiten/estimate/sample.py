@@ -73,7 +73,7 @@ def _cov_divisor(state: ScatterState) -> float:
     return state.wsum - 1.0
 
 
-def check_rows(state: ScatterState, names: Sequence[str], *, min_rows_ok: bool = False) -> None:
+def check_rows(state: ScatterState, names: Sequence[str]) -> None:
     """The row count the sample covariance needs: more rows than columns."""
     p = state.dim
     if state.n == 0:
@@ -82,7 +82,7 @@ def check_rows(state: ScatterState, names: Sequence[str], *, min_rows_ok: bool =
         raise InputError(
             f"the weights sum to {state.wsum:.6g}; frequency weights (a weight of 3 counts as three rows) "
             "must sum to more than 1 so that sum(w) - 1 > 0. Scale them to counts")
-    if not min_rows_ok and state.n <= p:
+    if state.n <= p:
         raise InputError(
             f"{state.n} complete row(s) for {p} columns: the sample covariance of n <= p rows is singular "
             f"(rank at most n - 1 = {state.n - 1}), so no Mahalanobis distance exists. Use "
@@ -152,7 +152,7 @@ def _gram_factor(state: ScatterState, names: Sequence[str]) -> tuple[Factor | No
 
 
 def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, path: str = "auto",
-                reiterable: bool = True, min_rows_ok: bool = False) -> ScatterFit:
+                reiterable: bool = True) -> ScatterFit:
     """Accumulate the scatter of the blocks along the automatic path.
 
     Parameters
@@ -164,8 +164,6 @@ def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, 
         ``"auto"``: Gram first, TSQR when the Gram factor loses more than
         ``gram_digits_max`` digits. A source that can be read only once
         (``reiterable=False``) goes straight to TSQR under ``"auto"``.
-    min_rows_ok : bool
-        Skip the n > p requirement (shrinkage works with n <= p).
 
     Returns
     -------
@@ -177,18 +175,12 @@ def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, 
         st, nb = accumulate(blocks(), "qr")
         if st is None or st.n == 0:
             raise _no_rows(names)
-        check_rows(st, names, min_rows_ok=min_rows_ok)
+        check_rows(st, names)
         return ScatterFit(st, "tsqr", None, None, nb, 1)
     st, nb = accumulate(blocks(), "gram")
     if st is None or st.n == 0:
         raise _no_rows(names)
-    check_rows(st, names, min_rows_ok=min_rows_ok)
-    if min_rows_ok and st.n <= st.dim:
-        # singular by construction; shrinkage repairs it, the QR route keeps the digits
-        if path == "gram" or not reiterable:
-            return ScatterFit(st, "gram", math.inf, None, nb, 1)
-        st2, _ = accumulate(blocks(), "qr", shift=st.shift)
-        return ScatterFit(st2, "tsqr", math.inf, None, nb, 2)
+    check_rows(st, names)
     f, digits = _gram_factor(st, names)
     if path == "gram" or digits <= current().gram_digits_max:
         return ScatterFit(st, "gram", digits, f, nb, 1)
