@@ -10,9 +10,11 @@ and each episode of the test period means.
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 
 from whiten.demos.cooling import SEED, write_data
+from whiten.errors import InputError
 
 TARGET = Path(__file__).resolve().parents[1] / "src" / "whiten" / "demos" / "data"
 
@@ -23,7 +25,12 @@ def main() -> None:
     ap.add_argument("--seed", type=int, default=SEED)
     ap.add_argument("--force", action="store_true")
     args = ap.parse_args()
-    for p in write_data(args.out, force=args.force, seed=args.seed):
+    try:
+        written = write_data(args.out, force=args.force, seed=args.seed)
+    except InputError as exc:
+        print(f"make_cooling_data: error: {exc}", file=sys.stderr)
+        sys.exit(1)
+    for p in written:
         print(p)
 
 
