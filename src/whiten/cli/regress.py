@@ -8,7 +8,6 @@ import json
 import math
 import os
 
-import numpy as np
 
 from ..errors import InputError
 
