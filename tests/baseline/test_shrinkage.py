@@ -77,3 +77,16 @@ def test_shrinkage_options_are_checked():
         whiten.fit_baseline(x, estimator="shrinkage", shrinkage="half")
     with pytest.raises(whiten.InputError, match="weights: supported with estimator='sample' only"):
         whiten.fit_baseline(x, estimator="shrinkage", weights=np.ones(30))
+
+
+def test_two_rows_ledoit_wolf_degenerate_oas_fine():
+    x = _rows(2, 3, seed=9)
+    # with 2 rows x_k x_k^T = S for both, so bbar^2 = 0 in Ledoit & Wolf (2004): no shrinkage, singular
+    delta, _ = _ledoit_wolf_2004(x)
+    assert delta == pytest.approx(0.0, abs=1e-12)
+    with pytest.raises(whiten.InputError, match="intensity is 0 .* Use shrinkage='oas'"):
+        whiten.fit_baseline(x, estimator="shrinkage")
+    b = whiten.fit_baseline(x, estimator="shrinkage", shrinkage="oas")
+    rho, est = _oas_2010(x)
+    assert b.params["intensity"] == pytest.approx(rho, rel=1e-12)
+    np.testing.assert_allclose(b.cov, est, rtol=1e-10)
