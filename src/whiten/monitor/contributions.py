@@ -8,7 +8,8 @@ chain (conditional decomposition along a sensor order)
     the sensors before it, so the terms are non-negative and sum exactly to
     ``d2 = ||z||^2`` (the decomposition of Mason, Tracy & Young, 1995, "Decomposition of T² for
     multivariate control chart interpretation", J. Quality Technology 27(2),
-    99-108, for one ordering). The split depends on the order.
+    99-108, for one ordering; reference given from memory). The split depends
+    on the order.
 
 drop (order-free)
     ``d2 - d2_without_j``: how much the distance falls when sensor j is left
