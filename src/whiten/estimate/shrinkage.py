@@ -83,9 +83,11 @@ def shrunk_factor(r: np.ndarray, n: int, intensity: float, m: float, names: Sequ
     p = r.shape[1]
     if not m > 0:
         raise InputError("every column is constant; nothing to estimate")
-    if intensity <= 0 and n <= p:
+    # with n <= p the estimate's smallest eigenvalue is intensity * m: below ~1e-12 of the
+    # target scale it is singular to working precision (rounding leaves ~1e-16 in place of 0)
+    if intensity <= 1e-12 and n <= p:
         raise InputError(
-            f"the shrinkage intensity is 0 for these {n} rows (their spread about the mean is exactly "
+            f"the shrinkage intensity is 0 (to rounding, {intensity:.1e}) for these {n} rows (their spread about the mean is exactly "
             f"explained by the sample covariance, as happens with 2 rows), so the estimate is the singular "
             f"sample covariance of n <= p = {p}. Use shrinkage='oas' or more rows")
     stacked = np.vstack([math.sqrt((1.0 - intensity) / n) * r, math.sqrt(intensity * m) * np.eye(p)])
