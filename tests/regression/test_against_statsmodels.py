@@ -189,3 +189,27 @@ def test_blocked_paths_hand_over_when_ill_conditioned():
     tol = 100 * k * EPS * (1 + k * tan_t)
     np.testing.assert_allclose(quick.coef, ref, rtol=tol)
     np.testing.assert_allclose(careful.coef, ref, rtol=tol)
+
+
+def test_weighted_influence_equals_leave_one_out_refits():
+    """WLS influence in the whitened model. References: leverage = squared row norms of the Q of
+    numpy.linalg.qr(sqrt(w) A); Cook's distance by its definition (Cook, 1977, from memory):
+    (b - b_(i))^T A^T W A (b - b_(i)) / (p s^2) with b_(i) from statsmodels WLS refits without row i.
+    (statsmodels' OLSInfluence does not whiten WLS results, so it is not the reference here.)"""
+    rng = np.random.default_rng(10)
+    n = 30
+    x = rng.standard_normal((n, 2))
+    y = x @ [1.0, 2.0] + rng.standard_normal(n)
+    w = rng.uniform(0.5, 2.0, n)
+    a = sm.add_constant(x)
+    aw = a * np.sqrt(w)[:, None]
+    q, _ = np.linalg.qr(aw)
+    ref = sm.WLS(y, a, weights=w).fit()
+    cooks = []
+    for i in range(n):
+        keep = np.arange(n) != i
+        d = ref.params - sm.WLS(y[keep], a[keep], weights=w[keep]).fit().params
+        cooks.append(d @ (aw.T @ aw) @ d / (3 * ref.scale))
+    inf = whiten.fit_linear(x, y, weights=w).influence()
+    np.testing.assert_allclose(inf.leverage, np.sum(q ** 2, axis=1), rtol=1e-12)
+    np.testing.assert_allclose(inf.cooks_distance, cooks, rtol=1e-9)
