@@ -230,7 +230,9 @@ class LinearFit:
     condition_number, condition_number_raw : float
         See :class:`FitHealth` (scaled = Belsley's unit-length columns; raw = as given).
     vif : ndarray, shape (n_predictors,)
-        Centred VIF of each predictor (intercept excluded). NaN for every
+        Centred VIF of each predictor (intercept excluded; for WLS/GLS, of the
+        whitened predictors, i.e. with weighted centring); ``inf`` for a column in
+        an exact linear dependence. NaN for every
         predictor when ``intercept=False``: the centred VIF presumes a model
         with an intercept, and the uncentred variant mostly measures the
         distance of a column's mean from zero.

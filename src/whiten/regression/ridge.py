@@ -17,6 +17,8 @@ the predictors scaled to unit standard deviation, so ``lambda`` is unit-free).
   ``RSS = sum_k (lambda / (s_k^2 + lambda))^2 c_k^2 + ||b_c - U c||^2`` with
   ``c = U^T b_c``, ``h_ii = w1_i^2 / ||w1||^2 + sum_k u_ik^2 s_k^2 / (s_k^2 + lambda)``;
   O(n k) per grid point. The chosen ``lambda`` is then refitted by the fixed route.
+  With weights or an error covariance both criteria live in the whitened model
+  (e.g. LOOCV is the mean squared *weighted* leave-one-out error).
 """
 
 from __future__ import annotations
