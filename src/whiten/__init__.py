@@ -51,5 +51,6 @@ __all__ += ["monitor"]
 
 # --- report re-exports go below this line ---
 from . import report
-from .report import Provenance, Report, monitoring_report
-__all__ += ["report", "Report", "Provenance", "monitoring_report"]
+from .report import Provenance, Report, calibration_report, likelihood_report, monitoring_report, regression_report
+__all__ += ["report", "Report", "Provenance", "monitoring_report", "regression_report", "likelihood_report",
+            "calibration_report"]

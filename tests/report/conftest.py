@@ -45,7 +45,7 @@ def filler_scores(filler_model, filler_batch) -> pd.DataFrame:
 
 
 #: every kind of report the browser tests open
-REPORT_KINDS = ["monitoring", "regression", "likelihood"]
+REPORT_KINDS = ["monitoring", "regression", "likelihood", "calibration"]
 
 
 def build_reports(scores, model) -> dict:

@@ -20,7 +20,7 @@ import pytest
 import whiten
 from whiten.cli import main
 from whiten.errors import InputError
-from whiten.report import likelihood_report, likelihood_rows, regression_report
+from whiten.report import calibration_report, likelihood_report, likelihood_rows, regression_report
 
 from .conftest import SENSORS, filler_covariance
 from .page import ReportPage, decode_png
@@ -45,6 +45,20 @@ def _fit(df: pd.DataFrame):
         return whiten.fit_linear(df[["melt_temp", "screw_rpm", "melt_temp_b"]], df["die_pressure"])
 
 
+def _scale_case():
+    """A bench scale read at seven reference weights; errors share a slow drift (covariance s2 I + t2 11')."""
+    masses = np.array([0.0, 1.0, 2.0, 5.0, 10.0, 20.0, 50.0])
+    n = masses.size
+    cov = 0.003 ** 2 * np.eye(n) + 0.0015 ** 2 * np.ones((n, n))
+    rng = np.random.default_rng(17)
+    y = 0.02 + 1.0004 * masses + rng.multivariate_normal(np.zeros(n), cov)
+    return masses, y, cov
+
+
+def _calibrate(masses, y, cov):
+    return whiten.calibrate(lambda th: th[0] + th[1] * masses, [0.0, 1.0], y, cov, names=["offset", "gain"])
+
+
 def _loglik_case(seed: int = 5):
     rng = np.random.default_rng(seed)
     cov = filler_covariance()
@@ -61,7 +75,8 @@ def job_reports() -> dict:
     g = whiten.Gaussian(mean, cov, names=SENSORS)
     ev = g.evaluate(x, missing="marginalize")
     return {"regression": regression_report(fit, response="die_pressure").to_html(),
-            "likelihood": likelihood_report(ev, g).to_html()}
+            "likelihood": likelihood_report(ev, g).to_html(),
+            "calibration": calibration_report(_calibrate(*_scale_case())).to_html()}
 
 
 # ---------------------------------------------------------------------------- regression
@@ -163,6 +178,34 @@ def test_likelihood_rows_from_a_summary_and_its_p_values():
         likelihood_rows(res, labels=["a"])
     with pytest.raises(InputError, match="gaussian_loglik"):
         likelihood_rows({"loglik": 1.0})
+
+
+def test_calibration_report_matches_the_fit_and_statsmodels_gls():
+    import statsmodels.api as sm
+    from scipy import stats
+
+    masses, y, cov = _scale_case()
+    fit = _calibrate(masses, y, cov)
+    page = ReportPage(calibration_report(fit).to_html())
+    assert page.external == [] and len(page.images) == 1
+    assert page.tables["parameters"]["row_heads"] == ["offset", "gain"]
+    est = np.array([float(v) for _, v in page.column("parameters", "estimate")])
+    se = np.array([float(v) for _, v in page.column("parameters", "std error")])
+    lo = np.array([float(v) for _, v in page.column("parameters", "from")])
+    assert np.array_equal(est, fit.theta) and np.array_equal(se, fit.stderr)
+    # intervals with the normal quantile for a stated covariance (scipy.stats reference)
+    assert np.allclose(lo, fit.theta - stats.norm.ppf(0.975) * fit.stderr, rtol=1e-15, atol=0)
+    # outside reference: statsmodels GLS with the same sigma; unscaled parameter covariance
+    ref = sm.GLS(y, sm.add_constant(masses), sigma=cov).fit()
+    assert np.allclose(est, ref.params, rtol=1e-8, atol=1e-10)
+    assert np.allclose(se, np.sqrt(np.diag(ref.normalized_cov_params)), rtol=1e-6)
+    assert float(page.tiles["chi2"]["value"]) == fit.chi2
+    assert math.isclose(float(page.tiles["p-value"]["value"]), stats.chi2.sf(fit.chi2, fit.dof), rel_tol=1e-12)
+    assert page.tiles["converged"]["text"] == "yes"
+    with pytest.raises(InputError, match="whiten.calibrate"):
+        calibration_report(object())
+    with pytest.raises(InputError, match="level"):
+        calibration_report(fit, level=1.5)
 
 
 # ---------------------------------------------------------------------------- --report on the commands

@@ -9,7 +9,7 @@ fetched), prints cleanly and reads at phone width.
 from .document import (CAUTION_CALIBRATION, CAUTION_SCREEN, Bullets, Figure, KeyFigure, Paragraph, Report, Section,
                        Table, TrustLine, format_number)
 from .monitoring import monitoring_report, worst_rows
-from .likelihood import likelihood_report, likelihood_rows
+from .likelihood import calibration_report, likelihood_report, likelihood_rows
 from .regression import coefficient_table, regression_report
 from .provenance import FileRecord, Provenance, cli_provenance, count_rows, file_record, sha256_file
 
@@ -18,5 +18,5 @@ __all__ = [
     "CAUTION_SCREEN", "CAUTION_CALIBRATION",
     "Provenance", "FileRecord", "file_record", "sha256_file", "count_rows", "cli_provenance",
     "monitoring_report", "worst_rows", "regression_report", "coefficient_table",
-    "likelihood_report", "likelihood_rows",
+    "likelihood_report", "likelihood_rows", "calibration_report",
 ]

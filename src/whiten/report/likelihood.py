@@ -12,7 +12,7 @@ from ..errors import InputError
 from .document import Report, format_number
 from .provenance import Provenance
 
-__all__ = ["likelihood_report", "likelihood_rows"]
+__all__ = ["likelihood_report", "likelihood_rows", "calibration_report"]
 
 #: p-value under which a row is counted as "far out" in the key figures
 FAR = 1e-3
@@ -226,4 +226,135 @@ def likelihood_report(result: Any, model: Any = None, *, provenance: Provenance 
                  "with the line of equality."),
             caption="Points along the line on the right mean the covariance describes the scatter; points "
                     "bunched at the top mean it is too small.")
+    return rep
+
+
+def _parameter_table(fit: Any, level: float):
+    import pandas as pd
+    from scipy import stats
+
+    if not (0.0 < float(level) < 1.0):
+        raise InputError(f"level: expected a probability strictly between 0 and 1, got {level!r}")
+    theta = np.asarray(fit.theta, dtype=float)
+    se = np.asarray(fit.stderr, dtype=float)
+    tail = 0.5 * (1.0 + float(level))
+    # a stated (known) error covariance gives normal intervals; a rescaled one, Student t on dof
+    q = float(stats.t.ppf(tail, fit.dof)) if fit.rescaled and fit.dof > 0 else float(stats.norm.ppf(tail))
+    names = [str(n) for n in (fit.names or [f"theta{k}" for k in range(theta.size)])]
+    frame = pd.DataFrame({"estimate": theta, "std error": se, "from": theta - q * se, "to": theta + q * se},
+                         index=pd.Index(names, name="parameter"))
+    return frame, q
+
+
+def calibration_report(fit: Any, *, provenance: Provenance | None = None, title: str | None = None,
+                       level: float = 0.95, charts: bool = True) -> Report:
+    """Build the report of a calibration (:func:`whiten.calibrate`).
+
+    Parameters
+    ----------
+    fit : CalibrationFit
+    provenance : Provenance, optional
+    title : str, optional
+    level : float
+        Interval level of the parameter table.
+    charts : bool
+
+    Returns
+    -------
+    Report
+
+    Raises
+    ------
+    InputError
+        Not a calibration result, or ``level`` outside (0, 1).
+
+    Notes
+    -----
+    Intervals are ``theta -/+ q * stderr`` with ``q`` the normal quantile when
+    the error covariance is taken as stated, and the Student t quantile on the
+    residual degrees of freedom when ``theta_cov`` was rescaled by the reduced
+    chi-square. The chi-square p-value says whether the stated covariance
+    describes the residual scatter.
+
+    Examples
+    --------
+    >>> import numpy as np, whiten
+    >>> from whiten.report import calibration_report
+    >>> t = np.linspace(0.0, 1.0, 8); y = 1.0 + 2.0 * t + 0.05 * np.sin(9 * t)
+    >>> fit = whiten.calibrate(lambda th: th[0] + th[1] * t, [0.0, 0.0], y, np.eye(8) * 0.01)
+    >>> rep = calibration_report(fit, charts=False)
+    >>> [f.value for f in rep.figures if f.key == "chi2"] == [fit.chi2]
+    True
+    """
+    need = ("theta", "stderr", "chi2", "dof", "p_value", "health", "residuals", "rescaled")
+    gone = [a for a in need if not hasattr(fit, a)]
+    if gone:
+        raise InputError(f"fit: expected the result of whiten.calibrate; it lacks {gone}")
+    table, q = _parameter_table(fit, level)
+    h = fit.health
+    rep = Report(title or "Calibration", job="calibration",
+                 lede=(f"{table.shape[0]} parameter(s) fitted to {np.size(fit.residuals)} observations by "
+                       "Gaussian least squares under the stated error covariance."), provenance=provenance)
+    pv = float(fit.p_value)
+    rep.key_figure("Chi-square", float(fit.chi2), digits=6, key="chi2", note=f"on {fit.dof} degrees of freedom")
+    rep.key_figure("Goodness-of-fit p-value", pv, digits=3, key="p-value",
+                   tone="alert" if pv < 0.001 else ("note" if pv < 0.05 else "good"),
+                   note="chance of a chi-square at least this large if the covariance is right")
+    rep.key_figure("Reduced chi-square", float(fit.reduced_chi2), digits=4, key="reduced-chi2",
+                   note="about 1 when the stated covariance fits")
+    trusted = max(0.0, 15.65 - float(h.digits_lost))
+    rep.key_figure("Digits in the parameter covariance", trusted, text=f"{trusted:.1f}", key="digits",
+                   tone="alert" if float(h.digits_lost) > current().digits_warn else "good",
+                   note=f"Jacobian condition number {format_number(h.cond, 3)}")
+    rep.key_figure("Converged", bool(fit.converged), key="converged", tone="good" if fit.converged else "alert",
+                   note=f"{fit.n_evals} model evaluations" if hasattr(fit, "n_evals") else "")
+
+    rep.health("Jacobian", f"The whitened Jacobian at the solution has condition number "
+               f"{format_number(h.cond, 3)}, so the parameter covariance may lose about "
+               f"{float(h.digits_lost):.1f} digits; derivatives: {h.jacobian}.",
+               "alert" if float(h.digits_lost) > current().digits_warn else "good")
+    if h.unidentified:
+        rep.health("Identifiability", f"Rank {h.rank}: not determined by the data: "
+                   f"{', '.join(map(str, h.unidentified))}.", "alert")
+    else:
+        rep.health("Identifiability", f"Every parameter is determined by the data (rank {h.rank}).", "good")
+    cov_h = getattr(h, "covariance", None)
+    if cov_h is not None:
+        rep.health("Error covariance", f"Factored with about {float(cov_h.digits_trusted):.1f} digits trusted "
+                   f"(LAPACK dpocon on the unit-diagonal scaling)"
+                   + (f"; jitter {format_number(cov_h.jitter, 3)} was added" if cov_h.jitter else "; no jitter")
+                   + ".", "alert" if cov_h.jitter else "good")
+    rep.health("Optimizer", f"{'Converged' if fit.converged else 'Did not converge'}: {fit.message}",
+               "good" if fit.converged else "alert")
+    if fit.rescaled:
+        rep.health("Scale", "The parameter covariance was multiplied by the reduced chi-square.", "note")
+
+    sec = rep.section("Parameters", key="parameters")
+    law = "Student t" if fit.rescaled and fit.dof > 0 else "normal"
+    sec.paragraph(f"Each parameter with its two-sided {100 * float(level):g}% interval, estimate minus and plus "
+                  f"{q:.4g} standard errors ({law} quantile).")
+    sec.table(table, f"Fitted parameters with {100 * float(level):g}% intervals", key="parameters",
+              formats={"estimate": ".8g", "std error": ".3g", "from": ".8g", "to": ".8g"})
+    if charts:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+
+        r = np.asarray(fit.residuals, dtype=float)
+        fig = Figure(figsize=(8.0, 3.0), dpi=100)
+        FigureCanvasAgg(fig)
+        ax = fig.add_subplot(1, 1, 1)
+        ax.plot(np.arange(r.size), r, color="#3c5a78", marker="o", markersize=3, linewidth=0.8)
+        ax.axhline(0.0, color="#a0522d", linewidth=1.0)
+        ax.set_xlabel("observation", fontsize=9)
+        ax.set_ylabel("residual", fontsize=9)
+        ax.set_title("Residuals at the solution (observed minus model)", loc="left", fontsize=10)
+        for side in ("top", "right"):
+            ax.spines[side].set_visible(False)
+        ax.grid(True, color="#e4e8eb", linewidth=0.7)
+        fig.tight_layout()
+        rep.section("Residuals", key="residuals").figure(
+            fig, key="residual-chart",
+            alt=(f"Line chart of the {r.size} residuals in observation order around zero; the largest absolute "
+                 f"residual is {format_number(np.max(np.abs(r)), 3)}."),
+            caption="A pattern (a curve, a trend) means the model misses something the data show.")
     return rep
