@@ -123,7 +123,7 @@ def _report(fit, args, preds) -> str:
     for i, name in enumerate(fit.names):
         est = fit.coef[i]
         if math.isnan(est):
-            lines.append(f"  {name.ljust(wname)}  set aside (depends on earlier columns; see below)")
+            lines.append(f"  {name.ljust(wname)}  set aside (a combination of other columns; see collinearity below)")
             continue
         extra = []
         if not math.isnan(fit.pvalues[i]):
@@ -135,7 +135,8 @@ def _report(fit, args, preds) -> str:
                      + (", " + ", ".join(extra) if extra else "") + ")")
     lines.append("")
     lines.append("-- how well it fits --")
-    lines.append(f"  explains {100 * fit.r_squared:.4g}% of the variation (adjusted {100 * fit.adj_r_squared:.4g}%); "
+    about = "of the variation" if fit.intercept else "of the sum of squares about zero (no intercept)"
+    lines.append(f"  explains {100 * fit.r_squared:.4g}% {about} (adjusted {100 * fit.adj_r_squared:.4g}%); "
                  f"residual sd {_fmt(fit.residual_sd)} on {_fmt(float(fit.dof))} degrees of freedom")
     if not math.isnan(fit.f_statistic):
         lines.append(f"  all-slopes-zero test: F = {_fmt(fit.f_statistic)}, p = {fit.f_pvalue:.2g}")
@@ -244,6 +245,7 @@ def run(args) -> int:
         for tag, col in (("y:", args.response), ("weights:", args.weights)):
             if msg.startswith(tag) and col:
                 msg = f"column {col!r}:" + msg[len(tag):]
+        msg = msg.replace("rank_policy='nan', 'drop' or 'minimum-norm'", "--rank-policy nan, drop or minimum-norm")
         raise InputError(f"{args.data}: {msg}") from None
     text = _report(fit, args, preds)
     doc = {"schema": "whiten.regress/1", "data": os.path.basename(args.data), "response": args.response,
