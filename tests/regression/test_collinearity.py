@@ -268,3 +268,16 @@ def test_refinement_beats_plain_qr_on_a_hard_polynomial():
     assert refined.condition_number > 1e8
     assert err(refined.coef) < 1e-11
     assert err(refined.coef) < 1e-3 * err(plain.coef)
+
+
+def test_zero_and_constant_columns_named():
+    """A column of zeros and a constant column next to the intercept (an unplugged sensor and a
+    fixed set point): both set aside, with what they are, and the rest matches numpy lstsq."""
+    t = np.arange(6.0)
+    x = pd.DataFrame({"t": t, "unplugged": np.zeros(6), "setpoint": np.full(6, 3.0)})
+    y = np.array([1.0, 2.1, 2.9, 4.2, 4.8, 6.1])
+    with pytest.warns(RankDeficiencyWarning, match=r"'unplugged' is identically zero; 'setpoint' = 3\*\(intercept\)"):
+        fit = whiten.fit_linear(x, y)
+    ref = np.linalg.lstsq(np.column_stack([np.ones(6), t]), y, rcond=None)[0]   # numpy lstsq
+    np.testing.assert_allclose(fit.coef[:2], ref, rtol=1e-13)
+    assert np.isnan(fit.coef[2:]).all()

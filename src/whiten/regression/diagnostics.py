@@ -191,8 +191,8 @@ def describe_dependence(r: np.ndarray, scale: np.ndarray, j: int, support: list[
         Distance of column j from the span, relative to its length.
     """
     target = r[:, j]
-    if not support:
-        return (f"'{names[j]}' is (numerically) a zero column", {}, 0.0)
+    if not support or not np.any(target):
+        return (f"{_label(names[j])} is identically zero", {}, 0.0)
     basis = r[:, support]
     c, *_ = np.linalg.lstsq(basis, target, rcond=None)
     res = float(np.linalg.norm(target - basis @ c))
