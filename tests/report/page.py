@@ -25,6 +25,7 @@ _URL_ATTRS = {"src", "href", "srcset", "poster", "data", "action", "formaction",
               "cite", "longdesc", "manifest", "ping", "imagesrcset"}
 _FETCHING_TAGS = {"script", "link", "iframe", "frame", "object", "embed", "base", "audio", "video", "source",
                   "track", "applet"}
+_VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
 _CSS_URL = re.compile(r"url\(\s*['\"]?([^'\")]*)", re.I)
 _CSS_IMPORT = re.compile(r"@import", re.I)
 
@@ -51,6 +52,8 @@ class ReportPage(HTMLParser):
         ``data-key -> {"caption", "head": [..], "rows": [[(text, data-value or None), ..]], "row_heads": [..]}``.
     ids, anchors : set of str
         Element ids and in-page link targets.
+    unbalanced : list of str
+        Start and end tags that do not nest (every element of a report is closed explicitly).
     """
 
     def __init__(self, text: str):
@@ -73,12 +76,21 @@ class ReportPage(HTMLParser):
         self._in_style = False
         self._in_title = False
         self.style_text = ""
+        self.unbalanced: list[str] = []
+        self._open: list[str] = []
+        self.doctype = ""
         self.feed(text)
         self.close()
+        self.unbalanced += [f"<{t}> never closed" for t in self._open]
+
+    def handle_decl(self, decl):
+        self.doctype = decl
 
     # -------------------------------------------------------------- parse
     def handle_starttag(self, tag, attrs):
         a = {k: (v or "") for k, v in attrs}
+        if tag not in _VOID:
+            self._open.append(tag)
         if tag in _FETCHING_TAGS:
             self.fetching_tags.append(tag)
         for k, v in a.items():
@@ -124,6 +136,12 @@ class ReportPage(HTMLParser):
                               "part": self._table["_part"]}
 
     def handle_endtag(self, tag):
+        if tag in _VOID:
+            self.unbalanced.append(f"</{tag}> closes a void element")
+        elif not self._open or self._open[-1] != tag:
+            self.unbalanced.append(f"</{tag}> while <{self._open[-1] if self._open else 'nothing'}> is open")
+        else:
+            self._open.pop()
         if tag == "style":
             self._in_style = False
         if tag == "title":
@@ -189,6 +207,25 @@ class ReportPage(HTMLParser):
         j = t["head"].index(name)
         offset = 1 if len(t["head"]) == len(t["rows"][0]) + 1 else 0  # header over the row-head column
         return [row[j - offset] for row in t["rows"]]
+
+
+def check_self_contained(html: str) -> ReportPage:
+    """Parse a report and assert it is well nested, self-contained and accessible; return the parse."""
+    page = ReportPage(html)
+    assert page.doctype.lower() == "doctype html" and page.unbalanced == [], page.unbalanced
+    assert len(page.ids) == html.count(' id="'), "duplicate element ids"
+    assert page.external == [], page.external
+    assert page.fetching_tags == [], page.fetching_tags
+    assert "<script" not in html.lower()
+    assert page.meta_csp and "default-src 'none'" in page.meta_csp[0]
+    # every in-page link lands on an element of the page
+    assert page.anchors <= page.ids, page.anchors - page.ids
+    for im in page.images:
+        assert im["alt"] and im["alt"].strip(), "an image without alt text"
+    for key, t in page.tables.items():
+        assert t["caption"], f"table {key} has no caption"
+        assert t["head"], f"table {key} has no header cells"
+    return page
 
 
 def decode_png(data: bytes):

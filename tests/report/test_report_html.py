@@ -14,26 +14,15 @@ import whiten
 from whiten.errors import InputError
 from whiten.report import Provenance, Report, count_rows, file_record, format_number, monitoring_report
 
-from .page import ReportPage, decode_png
-
-
-def _check_self_contained(html: str) -> ReportPage:
-    page = ReportPage(html)
-    assert page.external == [], page.external
-    assert page.fetching_tags == [], page.fetching_tags
-    assert "<script" not in html.lower()
-    assert page.meta_csp and "default-src 'none'" in page.meta_csp[0]
-    # every in-page link lands on an element of the page
-    assert page.anchors <= page.ids, page.anchors - page.ids
-    for im in page.images:
-        assert im["alt"] and im["alt"].strip(), "an image without alt text"
-    for key, t in page.tables.items():
-        assert t["caption"], f"table {key} has no caption"
-        assert t["head"], f"table {key} has no header cells"
-    return page
+from .page import ReportPage, check_self_contained, decode_png
 
 
 # ---------------------------------------------------------------------------- the checker itself
+def test_the_nesting_check_can_fail():
+    page = ReportPage("<!DOCTYPE html><html><body><table><tr><td>x</tr></table><p>open</body></html>")
+    assert page.unbalanced
+
+
 @pytest.mark.parametrize("bad", [
     '<img src="http://cdn.example/x.png" alt="x">',
     '<link rel="stylesheet" href="https://fonts.example/f.css">',
@@ -73,7 +62,7 @@ def _small_report(tmp_path) -> Report:
 
 def test_user_text_is_escaped_everywhere(tmp_path):
     html = _small_report(tmp_path).to_html()
-    page = _check_self_contained(html)
+    page = check_self_contained(html)
     assert "<filler>" not in html and "&lt;filler&gt;" in html
     assert "<b>" not in html and "<name>" not in html and "<ok>" not in html
     for escaped in ("A &lt;b&gt;test&lt;/b&gt; report", "<caption>A &lt;caption&gt;</caption>",
@@ -87,7 +76,7 @@ def test_user_text_is_escaped_everywhere(tmp_path):
 
 
 def test_images_are_embedded_pngs_that_decode(tmp_path):
-    page = _check_self_contained(_small_report(tmp_path).to_html())
+    page = check_self_contained(_small_report(tmp_path).to_html())
     pngs = page.png_images()
     assert len(pngs) == 1
     pixels = decode_png(pngs[0])                  # matplotlib's PNG reader, independent of how we wrote it
@@ -192,7 +181,7 @@ def test_monitoring_report_numbers_equal_the_csv_output(filler_scores, filler_mo
     filler_scores.to_csv(csv)
     back = pd.read_csv(csv, index_col=0)
     rep = monitoring_report(filler_scores, filler_model)
-    page = _check_self_contained(rep.to_html())
+    page = check_self_contained(rep.to_html())
 
     n_alarm = int(back["alarm"].sum())
     assert n_alarm >= 1                                          # the injected faults are found
@@ -246,5 +235,5 @@ def test_monitoring_report_with_a_fitted_baseline(filler_batch):
     b = whiten.fit_baseline(ref)
     s = whiten.monitor.score(b, ref.iloc[:50] + 0.1)
     html = monitoring_report(s, b, charts=False).to_html()
-    _check_self_contained(html)
+    check_self_contained(html)
     assert "400 reference rows" in html and "F(4, 396)" in html

@@ -23,7 +23,7 @@ from whiten.errors import InputError
 from whiten.report import calibration_report, likelihood_report, likelihood_rows, regression_report
 
 from .conftest import SENSORS, filler_covariance
-from .page import ReportPage, decode_png
+from .page import ReportPage, check_self_contained, decode_png
 
 _EPS = float(np.finfo(float).eps)
 
@@ -85,7 +85,7 @@ def test_regression_report_numbers_equal_the_fit_and_statsmodels():
 
     df = extruder_table()
     fit = _fit(df)
-    page = ReportPage(regression_report(fit, response="die_pressure").to_html())
+    page = check_self_contained(regression_report(fit, response="die_pressure").to_html())
     assert page.external == [] and page.fetching_tags == []
     t = page.tables["coefficients"]
     assert t["row_heads"] == list(fit.names)
@@ -122,7 +122,7 @@ def test_regression_report_names_set_aside_columns():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", whiten.NumericalWarning)
         fit = whiten.fit_linear(df[["melt_temp", "screw_rpm", "melt_temp_c"]], df["die_pressure"])
-    page = ReportPage(regression_report(fit, charts=False).to_html())
+    page = check_self_contained(regression_report(fit, charts=False).to_html())
     assert page.tiles["set-aside"]["value"] == "1" and page.tiles["set-aside"]["note"] == "melt_temp_c"
     notes = page.column("coefficients", "note")
     assert notes[-1][0].startswith("set aside")
@@ -137,7 +137,7 @@ def test_ridge_report_draws_the_paths():
     df = extruder_table()
     fit = whiten.fit_linear(df[["melt_temp", "screw_rpm"]], df["die_pressure"], ridge="gcv")
     html = regression_report(fit).to_html()
-    page = ReportPage(html)
+    page = check_self_contained(html)
     assert len(page.images) == 2 and all(decode_png(p).shape[1] > 100 for p in page.png_images())
     assert f"Ridge penalty {fit.ridge.penalty:.4g}" in html and "gcv" in html
 
@@ -149,7 +149,7 @@ def test_likelihood_report_total_matches_scipy():
     mean, cov, x = _loglik_case()
     g = whiten.Gaussian(mean, cov, names=SENSORS)
     ev = g.evaluate(x, missing="marginalize")
-    page = ReportPage(likelihood_report(ev, g).to_html())
+    page = check_self_contained(likelihood_report(ev, g).to_html())
     # outside reference: scipy.stats.multivariate_normal on complete rows, its marginal on the partial one
     ref = 0.0
     for row in x:
@@ -186,7 +186,7 @@ def test_calibration_report_matches_the_fit_and_statsmodels_gls():
 
     masses, y, cov = _scale_case()
     fit = _calibrate(masses, y, cov)
-    page = ReportPage(calibration_report(fit).to_html())
+    page = check_self_contained(calibration_report(fit).to_html())
     assert page.external == [] and len(page.images) == 1
     assert page.tables["parameters"]["row_heads"] == ["offset", "gain"]
     est = np.array([float(v) for _, v in page.column("parameters", "estimate")])
@@ -220,7 +220,7 @@ def test_regress_report_equals_its_json(tmp_path, capsys):
     argv = ["regress", str(data), "--response", "die_pressure", "-o", str(out), "--report", str(rep)]
     assert main(argv) == 0
     fit = json.loads(out.read_text())["fit"]
-    page = ReportPage(rep.read_text(encoding="utf-8"))
+    page = check_self_contained(rep.read_text(encoding="utf-8"))
     assert page.external == []
     est = [float(v) for _, v in page.column("coefficients", "estimate")]
     assert est == fit["coef"]
@@ -252,7 +252,7 @@ def test_score_report_equals_its_csv(tmp_path, filler_batch):
     assert main(["score", str(data), "--baseline", str(model), "-o", str(out), "--index-column", "stamp",
                  "--fdr", "0.05", "--report", str(rep)]) == 0
     scores = pd.read_csv(out, index_col=0)
-    page = ReportPage(rep.read_text(encoding="utf-8"))
+    page = check_self_contained(rep.read_text(encoding="utf-8"))
     assert page.external == [] and len(page.images) == 2
     assert int(page.tiles["alarms"]["value"]) == int(scores["alarm"].sum()) >= 1
     assert int(page.tiles["fdr-flags"]["value"]) == int(scores["alarm_fdr"].sum())
@@ -276,7 +276,7 @@ def test_loglik_report_equals_its_csv(tmp_path):
     assert main(["loglik", str(data), "--mean", str(mfile), "--cov", str(cfile), "-o", str(out),
                  "--report", str(rep)]) == 0
     csv = pd.read_csv(out)
-    page = ReportPage(rep.read_text(encoding="utf-8"))
+    page = check_self_contained(rep.read_text(encoding="utf-8"))
     assert page.external == []
     assert float(page.tiles["total"]["value"]) == pytest.approx(csv["loglik"].sum(), rel=1e-15)
     assert [float(v) for _, v in page.column("per-row", "loglik")] == list(csv["loglik"])
