@@ -187,9 +187,12 @@ class Scorer:
         scored = ~np.isnan(pval)
         alarm[scored] = pval[scored] < self.alpha
         top = np.full(n, "", dtype=object)
-        if scored.any():
+        names = np.asarray(self.columns, dtype=object)
+        if scored.all() and not mask.any():  # the common case: no NaN to step around
+            top[:] = names[np.argmax(drop, axis=1)]
+        elif scored.any():
             filled = np.where(np.isnan(drop[scored]), -np.inf, drop[scored])
-            top[scored] = np.asarray(self.columns, dtype=object)[np.argmax(filled, axis=1)]
+            top[scored] = names[np.argmax(filled, axis=1)]
         note = np.full(n, "", dtype=object)
         partial = np.flatnonzero(nobs < p)
         for i in partial:
@@ -232,15 +235,21 @@ class Scorer:
             if obs.size == 0:
                 continue
             sub = self._sub(obs)
-            d = x[np.ix_(which, obs)] - self.mean[obs]
+            if which.size == x.shape[0] and obs.size == self.p:
+                # every row complete: plain slices instead of fancy indexing (no copies)
+                rows, cols = slice(None), slice(None)
+                d = x - self.mean
+            else:
+                rows, cols = which[:, None], obs[None, :]
+                d = x[rows, cols] - self.mean[obs]
             z, dr = whitened_and_drop(sub.factor, d)
             d2[which] = np.einsum("ij,ij->i", z, z)
-            drop[np.ix_(which, obs)] = dr
+            drop[rows, cols] = dr
             if sub.chain_factor is sub.factor:
-                chain[np.ix_(which, obs)] = z * z
+                chain[rows, cols] = z * z
             else:
-                dc = x[np.ix_(which, sub.chain_obs)] - self.mean[sub.chain_obs]
-                chain[np.ix_(which, sub.chain_obs)] = chain_terms(sub.chain_factor, dc)
+                dc = x[which[:, None], sub.chain_obs[None, :]] - self.mean[sub.chain_obs]
+                chain[which[:, None], sub.chain_obs[None, :]] = chain_terms(sub.chain_factor, dc)
 
     def frame(self, data: Any, *, fdr: float | None = None, name: str = "data"):
         """Score ``data`` and return the DataFrame described in :func:`score`."""
