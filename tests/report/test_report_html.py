@@ -237,3 +237,23 @@ def test_monitoring_report_with_a_fitted_baseline(filler_batch):
     html = monitoring_report(s, b, charts=False).to_html()
     check_self_contained(html)
     assert "400 reference rows" in html and "F(4, 396)" in html
+
+
+def test_monitoring_report_names_a_redundant_sensor():
+    # reference: the construction itself -- 'line_total' is the sum of two other sensors plus
+    # a tiny independent noise, so it keeps about 1e-10 of its variance beyond the others
+    rng = np.random.default_rng(12)
+    x = rng.normal(size=(600, 3))
+    x = np.column_stack([x, x[:, 0] + x[:, 1] + 1e-5 * rng.normal(size=600)])
+    names = ["feed_a", "feed_b", "return_temp", "line_total"]
+    with pytest.warns(whiten.ConditioningWarning, match="digits"):
+        g = whiten.Gaussian(x.mean(axis=0), np.cov(x.T), names=names)
+    s = whiten.monitor.score(g, x[:20], phase="known")
+    html = monitoring_report(s, g, charts=False).to_html()
+    page = check_self_contained(html)
+    assert "Nearly redundant sensors" in html and "linear combination of" in html
+    assert page.tiles["alarms"]["value"] == str(int(s.alarm.sum()))
+    clean = whiten.Gaussian(np.zeros(3), np.eye(3), names=names[:3])
+    html = monitoring_report(whiten.monitor.score(clean, x[:5, :3], phase="known"), clean, charts=False).to_html()
+    assert "No sensor is a linear combination" in html
+    assert page.images == []

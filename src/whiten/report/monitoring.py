@@ -81,6 +81,35 @@ def _rows(k: int) -> str:
     return f"{k} row" + ("" if k == 1 else "s")
 
 
+#: a sensor whose variance is explained by the others up to this fraction is called redundant
+REDUNDANT = 1e-6
+
+
+def _redundancy(rep: Report, baseline: Any) -> None:
+    """Name sensors that are (nearly) linear combinations of others (pivoted Cholesky, LAPACK dpstrf)."""
+    from ..linalg.pivoted import pivoted_cholesky
+
+    factor = getattr(baseline, "factor", None)
+    if factor is None:
+        return
+    m = factor.matrix()
+    m[np.diag_indices_from(m)] -= float(factor.jitter)  # judge the estimate, not its repair
+    names = getattr(baseline, "columns", None) or factor.names
+    try:
+        rr = pivoted_cholesky(m, tol=REDUNDANT, names=list(names) if names is not None else None)
+    except InputError:  # pragma: no cover - the factor's matrix is square and finite
+        return
+    if rr.full_rank:
+        rep.health("Redundancy", f"No sensor is a linear combination of the others: each keeps more than "
+                   f"{REDUNDANT:g} of its variance beyond what the others explain (pivoted Cholesky).", "good")
+        return
+    parts = [f"{d} ({format_number(rr.residual_variance.get(d, 0.0), 2)} of its variance unexplained)"
+             for d in rr.dependent]
+    rep.health("Redundancy", "Nearly redundant sensors: " + "; ".join(rr.describe()) + ". Residual shares: "
+               + ", ".join(parts) + ". Distances along these directions rest on very little variance; "
+               "consider leaving such a sensor out of the baseline.", "note")
+
+
 def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
     basis = attrs.get("limit_basis")
     if basis:
@@ -119,6 +148,7 @@ def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
             words += (f" (the Gram route would have lost {float(gram):.1f} digits, so the factor was "
                       "recomputed from a QR of the centred data)")
         rep.health("Estimator", words + ".", "good")
+        _redundancy(rep, baseline)
     else:
         dt = attrs.get("digits_trusted")
         if dt is not None:
