@@ -90,6 +90,7 @@ footer { margin-top: 1.5rem; font-size: .78rem; color: var(--muted); border-top:
   .tiles { grid-template-columns: 1fr 1fr; gap: .5rem; }
   .tile .value { font-size: 1.2rem; }
   .record dl { grid-template-columns: 1fr; } .record dt { margin-top: .4rem; }
+  caption { position: sticky; left: 0; max-width: calc(100vw - 2rem); }
 }
 @media print {
   @page { margin: 14mm 12mm; }
