@@ -257,3 +257,21 @@ def test_monitoring_report_names_a_redundant_sensor():
     html = monitoring_report(whiten.monitor.score(clean, x[:5, :3], phase="known"), clean, charts=False).to_html()
     assert "No sensor is a linear combination" in html
     assert page.images == []
+
+
+def test_monitoring_report_edge_cases(filler_model, filler_batch):
+    empty = whiten.monitor.score(filler_model, filler_batch.iloc[:3], phase="known").iloc[:0]
+    with pytest.raises(InputError, match="no rows"):
+        monitoring_report(empty)
+    # a quiet batch: no alarm, so no "which sensors lead" section, and the alarms tile is not alarming
+    quiet = whiten.monitor.score(filler_model, filler_batch.iloc[:30].fillna(filler_model.mean[1]),
+                                 phase="known", alpha=1e-9)
+    assert not quiet.alarm.any()
+    page = check_self_contained(monitoring_report(quiet, filler_model, charts=False).to_html())
+    assert page.tiles["alarms"]["value"] == "0" and "leaders" not in page.tables
+    # nothing scored at all: figures still come out, nothing is invented
+    blank = whiten.monitor.score(filler_model, filler_batch.iloc[[200, 200]], phase="known")
+    assert blank.d2.isna().all()
+    page = check_self_contained(monitoring_report(blank, filler_model).to_html())
+    assert page.tiles["alarms"]["value"] == "0" and page.tiles["partial"]["value"] == "2"
+    assert page.images == [] and "worst-rows" not in page.tables
