@@ -59,3 +59,43 @@ def _benchmark_page(app, docname, source):
 def setup(app):
     app.connect("source-read", _benchmark_page)
     return {"parallel_read_safe": True}
+
+
+def _cli_help_directive():
+    """``.. whiten-cli-help::`` -- the ``--help`` text of every command, read from the parser itself."""
+    import argparse
+
+    from docutils.parsers.rst import Directive
+    from docutils import nodes
+    from docutils.statemachine import StringList
+    from sphinx.util.nodes import nested_parse_with_titles
+
+    class CliHelp(Directive):
+        has_content = False
+
+        def run(self):
+            from whiten.cli import build_parser
+
+            os.environ["COLUMNS"] = "88"  # argparse wraps to the terminal width; fix it for the page
+            parser = build_parser()
+            sub = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+            lines = []
+            for name, p in sub.choices.items():
+                title = f"whiten {name}"
+                lines += [title, "-" * len(title), "", "::", ""]
+                lines += ["    " + ln if ln.strip() else "" for ln in p.format_help().splitlines()]
+                lines += [""]
+            holder = nodes.section()
+            holder.document = self.state.document
+            nested_parse_with_titles(self.state, StringList(lines, source="whiten --help"), holder)
+            return holder.children
+
+    return CliHelp
+
+
+_setup_benchmarks = setup
+
+
+def setup(app):  # noqa: F811 - extends the setup above
+    app.add_directive("whiten-cli-help", _cli_help_directive())
+    return _setup_benchmarks(app)

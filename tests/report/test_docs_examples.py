@@ -64,3 +64,6 @@ def test_sphinx_build_has_no_warnings(tmp_path):
     api = (out / "api.html").read_text(encoding="utf-8")
     # the API page is generated from the docstrings, not written by hand
     assert "whiten.cholesky" in api and "dpocon" in api and "monitoring_report" in api
+    cli = (out / "cli.html").read_text(encoding="utf-8")
+    # the command help is read from the parser, so every command and the --report option appear
+    assert "whiten score" in cli and "whiten regress" in cli and cli.count("--report") >= 3
