@@ -848,6 +848,18 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     """
     if estimator not in _ESTIMATORS:
         raise InputError(f"estimator: expected one of {_ESTIMATORS}, got {estimator!r}")
+    from .parallel.dask import is_dask_collection
+
+    if is_dask_collection(data):
+        # the dask engine: per-block states reduced in a tree on the workers
+        unused = [k for k, v in (("chunksize", chunksize), ("weights", weights), ("index_column", index_column))
+                  if v is not None]
+        if unused:
+            raise InputError(f"{', '.join(unused)}: not used with dask input (dask's own partitions are the "
+                             "chunks; put weights or labels in the collection's index/columns)")
+        from .parallel.dask import fit_baseline_dask
+
+        return fit_baseline_dask(data, estimator=estimator, columns=columns, missing=missing, path=path)
     if missing not in _MISSING:
         raise InputError(f"missing: expected one of {_MISSING}, got {missing!r}")
     wvals, wcol = _weights_array(weights)

@@ -642,6 +642,56 @@ def _blocked_solution(design: _Design, tol, policy, max_steps, refine, notes):
         # ill-conditioned, or an exact fit ([A y] singular): Householder on every block
         raug = tsqr_r(blocks(), p + 1)
         path = "blocked-tsqr"
+
+    def make_pass(kept, sw, kind):
+        return _local_residual_pass(design, rows, kept, sw, kind)
+
+    return solution_from_r(raug, p, path, tol, policy, max_steps, refine, notes, make_pass)
+
+
+def _local_residual_pass(design: _Design, rows: int, kept, sw, kind):
+    """``residual_pass(x, want_grad) -> (whitened residuals, A^T r or None)`` over in-memory rows."""
+    p = design.p
+
+    def residual_pass(xc, want_grad):
+        if not want_grad and kind == "none":
+            # plain double: one matrix-vector product over the whole design, no copies
+            beta = xc * sw
+            k0 = int(design.intercept)
+            pred = [c - k0 for c in kept if c >= k0]
+            fit_ = design.x[:, pred] @ beta[len(kept) - len(pred):] if len(pred) < design.x.shape[1] \
+                else design.x @ beta[len(kept) - len(pred):]
+            if design.intercept and 0 in kept:
+                fit_ = fit_ + beta[0]
+            res = design.y - fit_
+            if design.sqrt_w is not None:
+                res = res * design.sqrt_w
+            return res, None
+        # one pass: residual b - A x and gradient A^T r, both in extended precision when refining
+        res = np.empty(design.n)
+        grad = np.zeros(len(kept))
+        for a0, b0, blk in design.augmented_blocks(rows):
+            ab = blk[:, kept] * sw[None, :]
+            yb = blk[:, p]
+            if kind == "none":
+                rb = yb - ab @ xc
+            else:
+                rb = _extended.residual(ab, xc, yb, None, kind)
+            res[a0:b0] = rb
+            if want_grad:
+                grad += _extended.gradient(ab, rb, kind) if kind != "none" else ab.T @ rb
+        return res, grad
+
+    return residual_pass
+
+
+def solution_from_r(raug, p, path, tol, policy, max_steps, refine, notes, make_pass):
+    """Finish a blocked fit from the R factor of ``[A y]`` (shape (p+1, p+1) or (p, p+1)).
+
+    ``make_pass(kept, column_scale, arithmetic)`` returns the residual pass over
+    the rows (in memory, or on a dask cluster). Returns ``(s, r_full, aside,
+    solution or None)``; None hands over to the dense Householder route.
+    """
     norms = np.sqrt(np.einsum("ij,ij->j", raug[:, :p], raug[:, :p]))
     s = pow2_column_scale(norms)
     # power-of-two column scaling is exact, so R of the scaled design is R * s
@@ -681,38 +731,8 @@ def _blocked_solution(design: _Design, tol, policy, max_steps, refine, notes):
         return s, r_full, aside, None
     x = tri_solve(r, z)
     kind = _extended.extended_kind("longdouble") if refine else "none"
-    sw = s[kept]
+    residual_pass = make_pass(kept, s[kept], kind)
     steps, conv, corr, prev = 0, False, math.nan, math.inf
-
-    def residual_pass(xc, want_grad):
-        if not want_grad and kind == "none":
-            # plain double: one matrix-vector product over the whole design, no copies
-            beta = xc * sw
-            k0 = int(design.intercept)
-            pred = [c - k0 for c in kept if c >= k0]
-            fit_ = design.x[:, pred] @ beta[len(kept) - len(pred):] if len(pred) < design.x.shape[1] \
-                else design.x @ beta[len(kept) - len(pred):]
-            if design.intercept and 0 in kept:
-                fit_ = fit_ + beta[0]
-            res = design.y - fit_
-            if design.sqrt_w is not None:
-                res = res * design.sqrt_w
-            return res, None
-        # one pass: residual b - A x and gradient A^T r, both in extended precision when refining
-        res = np.empty(design.n)
-        grad = np.zeros(len(kept))
-        for a0, b0, blk in design.augmented_blocks(rows):
-            ab = blk[:, kept] * sw[None, :]
-            yb = blk[:, p]
-            if kind == "none":
-                rb = yb - ab @ xc
-            else:
-                rb = _extended.residual(ab, xc, yb, None, kind)
-            res[a0:b0] = rb
-            if want_grad:
-                grad += _extended.gradient(ab, rb, kind) if kind != "none" else ab.T @ rb
-        return res, grad
-
     res, grad = residual_pass(x, refine)
     if refine:
         for _ in range(max_steps):
@@ -834,6 +854,18 @@ def fit_linear(
         raise InputError(f"method: choose one of {list(METHODS)}, got {method!r}")
     if refine not in ("auto", True, False):
         raise InputError(f"refine: choose 'auto', True or False, got {refine!r}")
+    from ..parallel.dask import is_dask_collection
+
+    if is_dask_collection(X) or is_dask_collection(y):
+        # the dask engine: R of [1 X y] reduced on the workers, residual passes there too
+        unused = [k for k, v in (("weights", weights), ("error_cov", error_cov), ("ridge", ridge))
+                  if v is not None] + (["standardize"] if standardize else [])
+        if unused:
+            raise InputError(f"{', '.join(unused)}: not available with dask input; compute the arrays first")
+        from ..parallel.dask import fit_linear_dask
+
+        return fit_linear_dask(X, y, intercept=intercept, rank_policy=rank_policy, rank_tol=rank_tol,
+                               refine=refine)
     design = _prepare(X, y, intercept, weights, error_cov)
     if ridge is not None:
         from .ridge import fit_ridge
@@ -863,7 +895,10 @@ def fit_linear(
     return _assemble(design, sol, s, r_full, aside, tol, rank_policy)
 
 
-def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) -> LinearFit:
+def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy, *, rss: float | None = None,
+              vectors: tuple | None = None) -> LinearFit:
+    # rss / vectors: given by engines whose residuals stay distributed (whiten.parallel.dask),
+    # where ``vectors`` = (fitted, residuals) are lazy arrays that must not be pulled in here
     n, p = design.n, design.p
     names = design.all_names
     dep_sentences = []
@@ -893,7 +928,7 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
              f"{action}. " + "; ".join(dep_sentences))
     rank = len(sol.cols) if sol.var_rows is None else sol.var_rows.shape[0]
     dof = n - rank
-    rss = float(sol.wresid @ sol.wresid)
+    rss = float(sol.wresid @ sol.wresid) if rss is None else float(rss)
     sigma = math.sqrt(rss / dof) if dof > 0 else math.nan
     # coefficients and standard errors in original units
     sc = s[sol.cols]
@@ -946,7 +981,9 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
         coef, stderr, tvals, pvals = coef[keep], stderr[keep], tvals[keep], pvals[keep]
         out_names = [names[j] for j in keep]
     # fitted / residuals in y units (from the accurate whitened residuals when rows are only weighted)
-    if design.factor is not None or sol.var_rows is not None:
+    if vectors is not None:
+        fitted, resid = vectors
+    elif design.factor is not None or sol.var_rows is not None:
         fitted = _fitted(design, sol.cols, beta)
         resid = design.y - fitted
     else:
@@ -994,7 +1031,8 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy) ->
         names=tuple(out_names), coef=_ro(coef), stderr=_ro(stderr), tvalues=_ro(tvals), pvalues=_ro(pvals),
         residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=float(fstat), f_pvalue=float(fp),
         loglik=ll, aic=aic, bic=bic, nobs=n, dof=dof, dof_model=dof_model, rank=rank, vif=_ro(vif),
-        collinearity=coll, fitted=_ro(fitted), residuals=_ro(resid), health=health,
+        collinearity=coll, fitted=fitted if vectors is not None else _ro(fitted),
+        residuals=resid if vectors is not None else _ro(resid), health=health,
         intercept=design.intercept, predictor_names=tuple(design.names), weighted=weighted,
         _r=fit_r_for_pred, _scale=sc, _fit_cols=tuple(sol.cols), _q=sol.q, _wresid=sol.wresid,
         _design=design)

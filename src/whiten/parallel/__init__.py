@@ -1,0 +1,1 @@
+"""Scale-out engines. ``whiten.parallel.dask`` needs the optional extra ``whiten[dask]``."""
