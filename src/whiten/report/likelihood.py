@@ -41,6 +41,14 @@ def likelihood_rows(result: Any, labels: Any = None):
     ------
     InputError
         Not one of the two result types, or labels of the wrong length.
+
+    Examples
+    --------
+    >>> import numpy as np, whiten
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.2], [0.2, 1.0]])
+    >>> rows = likelihood_rows(g.evaluate(np.array([[0.5, np.nan], [0.1, -0.3]]), missing="marginalize"))
+    >>> rows["dof"].tolist()
+    [1, 2]
     """
     import pandas as pd
     from scipy import stats

@@ -50,6 +50,15 @@ def worst_rows(scores: Any, k: int = 5, top: int = 3):
     ------
     InputError
         ``scores`` lacks the score columns.
+
+    Examples
+    --------
+    >>> import numpy as np, whiten, whiten.monitor
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.0], [0.0, 1.0]], names=["inlet", "outlet"])
+    >>> s = whiten.monitor.score(g, np.array([[0.1, 0.0], [0.0, 6.0], [3.0, 0.0]]), phase="known")
+    >>> w = worst_rows(s, 2)
+    >>> list(w.index), w["top sensors"].iloc[0].startswith("outlet")
+    ([1, 2], True)
     """
     import pandas as pd
 

@@ -35,6 +35,14 @@ def coefficient_table(fit: Any, level: float = 0.95):
     ------
     InputError
         Not a fit, or ``level`` outside (0, 1).
+
+    Examples
+    --------
+    >>> import numpy as np, whiten
+    >>> t = np.linspace(0.0, 1.0, 9)
+    >>> tab = coefficient_table(whiten.fit_linear(t[:, None], 1.0 + t + 0.01 * np.cos(30 * t)))
+    >>> bool((tab["from"] < tab["estimate"]).all() and (tab["estimate"] < tab["to"]).all())
+    True
     """
     import pandas as pd
 
