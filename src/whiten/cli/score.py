@@ -10,6 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..io.tables import write_csv_chunk
 from ..errors import InputError
 
 EPILOG = """\
@@ -151,7 +152,7 @@ def run(args) -> int:
             frame = pd.DataFrame(cols, index=idx)
             if args.index_column is None:
                 frame.index.name = "row"
-            frame.to_csv(fh, header=first, index=True, lineterminator="\n")
+            write_csv_chunk(frame, fh, header=first)
             first = False
             d2 = cols["d2"]
             n_alarm += int(cols["alarm"].sum())
