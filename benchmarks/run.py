@@ -22,7 +22,7 @@ import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-AREAS = ["gaussian", "baseline", "regression", "likelihood", "streaming", "scaling"]
+AREAS = ["gaussian", "baseline", "monitor", "regression", "likelihood", "scaling", "streaming"]
 
 
 def machine() -> str:
