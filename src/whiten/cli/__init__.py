@@ -75,6 +75,14 @@ def main(argv: list[str] | None = None) -> int:
     except (PermissionError, IsADirectoryError) as exc:
         print(f"whiten {args.command}: error: cannot use {exc.filename!r}: {exc.strerror}", file=sys.stderr)
         return 1
+    except BrokenPipeError:
+        # the reader went away (e.g. `whiten inspect m.json | head`): stop quietly, as the
+        # Python documentation recommends, without a traceback at interpreter exit
+        import os
+
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 1
     except KeyboardInterrupt:
         print(f"whiten {args.command}: interrupted", file=sys.stderr)
         return 130
