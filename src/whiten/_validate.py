@@ -234,7 +234,7 @@ def as_square(
     name: str = "a",
     symmetry_rtol: float | None = None,
 ) -> tuple[np.ndarray, list[str] | None]:
-    """A finite, square, symmetric float64 matrix (a copy, never the caller's array).
+    """A finite, square, symmetric float64 matrix (a new Fortran-ordered array, never the caller's).
 
     The symmetry check is relative to ``max|a|``; the message gives the
     largest asymmetry and where it is. The returned matrix is exactly
@@ -249,16 +249,32 @@ def as_square(
     if n == 0:
         raise InputError(f"{name}: is empty (0 x 0)")
     rtol = current().symmetry_rtol if symmetry_rtol is None else symmetry_rtol
-    scale = float(np.max(np.abs(values)))
-    asym = np.abs(values - values.T)
-    worst = float(asym.max())
+    scale = max(float(values.max()), -float(values.min()))
+    # Work in column panels of about 1 MB: no n x n temporaries, which for a large matrix
+    # cost more (allocation and page faults) than the arithmetic.
+    step = max(1, (1 << 17) // n)
+    worst, wi, wj = 0.0, 0, 0
+    sym = np.empty((n, n), order="F")  # the caller's array is never modified
+    for j0 in range(0, n, step):
+        j1 = min(n, j0 + step)
+        d = np.abs(values[:, j0:j1] - values[j0:j1, :].T)
+        k = int(np.argmax(d))
+        if d.flat[k] > worst:
+            worst = float(d.flat[k])
+            wi, wj = divmod(k, j1 - j0)
+            wj += j0
+        # exactly symmetric copy built from the lower triangle
+        sym[j0:, j0:j1] = values[j0:, j0:j1]
+        sym[:j0, j0:j1] = values[j0:j1, :j0].T
+        blk = sym[j0:j1, j0:j1]
+        iu = np.triu_indices(j1 - j0, 1)
+        blk[iu] = blk.T[iu]
     if scale > 0 and worst > rtol * scale:
-        i, j = np.unravel_index(int(np.argmax(asym)), asym.shape)
+        i, j = wi, wj
         lab = (lambda k: repr(names[k])) if names is not None else (lambda k: str(k))
         raise InputError(
             f"{name}: is not symmetric: largest asymmetry |a[{lab(i)},{lab(j)}] - a[{lab(j)},{lab(i)}]| = "
             f"{worst:.3g} ({worst / scale:.2g} of max|a|, tolerance {rtol:g}). "
             "Symmetrize with (a + a.T) / 2 if the difference is rounding"
         )
-    sym = np.tril(values) + np.tril(values, -1).T
-    return np.ascontiguousarray(sym), names
+    return sym, names

@@ -76,12 +76,6 @@ def _pow2_scale(diag: np.ndarray) -> np.ndarray:
     return np.exp2(-np.round(0.5 * np.log2(d)))
 
 
-def _potrf(m: np.ndarray) -> tuple[np.ndarray, int]:
-    """Lower Cholesky factor of m (not modified) and LAPACK info."""
-    c, info = lapack.dpotrf(m, lower=1, clean=1, overwrite_a=0)
-    return c, int(info)
-
-
 def _pocon(lower: np.ndarray, anorm: float) -> float:
     if anorm == 0 or not np.isfinite(anorm):
         return 0.0
@@ -94,19 +88,27 @@ def _digits_lost(rcond: float) -> float:
 
 
 def _factor_scaled(m: np.ndarray):
-    """Factor m through its (power-of-two) unit-diagonal scaling.
+    """Factor m through its (power-of-two) unit-diagonal scaling; m is not modified.
 
-    Returns (lower, scale, info, rcond_scaled): lower is the factor of m,
-    ``scale`` the diagonal scaling s with m_s = S m S.
+    Returns ``(lower, scale, info, rcond_scaled, anorm)``: ``lower`` is the factor
+    of m (None on failure), ``scale`` the diagonal scaling s with m_s = S m S,
+    ``anorm`` the 1-norm of m (for the unscaled condition estimate). The scaled
+    copy is factored in place, so the only n x n arrays made are that copy and
+    one temporary for the norms.
     """
     s = _pow2_scale(np.diag(m).copy())
-    ms = m * s[:, None] * s[None, :]
-    ls, info = _potrf(ms)
+    absm = np.abs(m)
+    anorm = float(absm.sum(axis=0).max())
+    anorm_s = float((s * (s @ absm)).max())  # column sums of |S m S|, without forming it
+    del absm
+    ms = np.multiply(m, s[:, None], order="F")
+    ms *= s[None, :]
+    c, info = lapack.dpotrf(ms, lower=1, clean=1, overwrite_a=1)
     if info != 0:
-        return None, s, info, 0.0, ms
-    rc_s = _pocon(ls, float(np.abs(ms).sum(axis=0).max()))
-    lower = ls / s[:, None]  # exact: s holds powers of two
-    return lower, s, 0, rc_s, ms
+        return None, s, int(info), 0.0, anorm
+    rc_s = _pocon(c, anorm_s)
+    c /= s[:, None]  # exact: s holds powers of two
+    return c, s, 0, rc_s, anorm
 
 
 def _name(names: Sequence[str] | None, k: int) -> str:
@@ -142,9 +144,10 @@ class Factor:
     __slots__ = ("_lower", "_lower_f", "_health", "_names", "_matrix", "_inv_diag", "_logdet")
 
     def __init__(self, lower: np.ndarray, health: FactorHealth, names: Sequence[str] | None = None,
-                 matrix: np.ndarray | None = None):
-        # one Fortran-ordered copy serves both users and LAPACK/BLAS (no second copy)
-        lower = np.array(lower, dtype=np.float64, order="F", copy=True)
+                 matrix: np.ndarray | None = None, *, _copy: bool = True):
+        # one Fortran-ordered copy serves both users and LAPACK/BLAS; with _copy=False the
+        # library hands over arrays it made for this factor alone (no copies at all)
+        lower = np.array(lower, dtype=np.float64, order="F", copy=True) if _copy else np.asfortranarray(lower)
         lower.setflags(write=False)
         self._lower = lower
         self._lower_f = lower
@@ -153,7 +156,7 @@ class Factor:
         if self._names is not None and len(self._names) != lower.shape[0]:
             raise InputError(f"names: expected {lower.shape[0]} names, got {len(self._names)}")
         if matrix is not None:
-            matrix = np.array(matrix, dtype=np.float64, copy=True)
+            matrix = np.array(matrix, dtype=np.float64, copy=True) if _copy else matrix
             matrix.setflags(write=False)
         self._matrix = matrix
         self._inv_diag = None
@@ -418,13 +421,13 @@ class Factor:
         """
         idx = np.asarray(idx, dtype=np.intp)
         m = self.matrix()[np.ix_(idx, idx)]
-        lower, _, info, rc_s, _ = _factor_scaled(m)
+        lower, _, info, rc_s, anorm = _factor_scaled(m)
         if info != 0:  # rounding only; cannot happen for a well-formed factor
             raise NotPositiveDefiniteError(f"sub-matrix failed to factor at pivot {info - 1}", pivot=info - 1)
         names = None if self._names is None else [self._names[i] for i in idx]
-        rc = _pocon(lower, float(np.abs(m).sum(axis=0).max()))
+        rc = _pocon(lower, anorm)
         h = FactorHealth(rc, rc_s, _digits_lost(rc_s), self.jitter, self._health.jitter_relative, self._health.method)
-        return Factor(lower, h, names, matrix=m)
+        return Factor(lower, h, names, matrix=m, _copy=False)
 
 
 def _health_of(lower: np.ndarray, jitter: float, jitter_rel: float, method: str) -> FactorHealth:
@@ -518,20 +521,21 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str
             raise InputError(f"jitter: expected 'auto', False or a non-negative float, got {jitter!r}")
         amount = float(jitter)
         mj = m + amount * np.eye(m.shape[0])
-        lower, _, info, rc_s, ms = _factor_scaled(mj)
+        lower, _, info, rc_s, anorm = _factor_scaled(mj)
         if info != 0:
             raise NotPositiveDefiniteError(
                 f"a + {amount:.3g}*I is not positive definite (failed at pivot {_name(names, info - 1)}); "
                 "use a larger jitter or jitter='auto'", pivot=info - 1)
-        return _finish(lower, mj, rc_s, amount, amount / mean_diag, "cholesky" if amount == 0 else "cholesky+jitter",
+        return _finish(lower, mj, rc_s, anorm, amount, amount / mean_diag, "cholesky" if amount == 0 else "cholesky+jitter",
                        names, opts)
 
-    lower, _, info, rc_s, ms = _factor_scaled(m)
+    lower, sc, info, rc_s, anorm = _factor_scaled(m)
     if info == 0:
-        return _finish(lower, m, rc_s, 0.0, 0.0, "cholesky", names, opts)
+        return _finish(lower, m, rc_s, anorm, 0.0, 0.0, "cholesky", names, opts)
 
     # The plain factorization failed at pivot info-1. Indefinite or merely singular?
     pivot = info - 1
+    ms = m * sc[:, None] * sc[None, :]
     lam = _min_eig(ms)
     lam_rel = lam / float(np.diag(ms).mean())
     zero_var = [k for k in range(m.shape[0]) if diag[k] == 0]
@@ -554,9 +558,9 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str
     while rel <= opts.jitter_ceiling * (1 + 1e-12):
         amount = rel * mean_diag
         mj = m + amount * np.eye(m.shape[0])
-        lower, _, info, rc_s, _ = _factor_scaled(mj)
+        lower, _, info, rc_s, anorm = _factor_scaled(mj)
         if info == 0:
-            f = _finish(lower, mj, rc_s, amount, rel, "cholesky+jitter", names, opts, conditioning_warning=False)
+            f = _finish(lower, mj, rc_s, anorm, amount, rel, "cholesky+jitter", names, opts, conditioning_warning=False)
             warn(JitterWarning,
                  f"matrix is singular to working precision (failed at pivot {_name(names, pivot)}{zv}); "
                  f"added jitter {amount:.3g} to the diagonal ({rel:.1e} of the mean diagonal). "
@@ -571,10 +575,10 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str
         pivot=pivot, value=lam_rel)
 
 
-def _finish(lower, m, rc_s, amount, rel, method, names, opts, conditioning_warning=True) -> Factor:
-    rc = _pocon(lower, float(np.abs(m).sum(axis=0).max()))
+def _finish(lower, m, rc_s, anorm, amount, rel, method, names, opts, conditioning_warning=True) -> Factor:
+    rc = _pocon(lower, anorm)
     h = FactorHealth(rc, rc_s, _digits_lost(rc_s), float(amount), float(rel), method)
-    f = Factor(lower, h, names, matrix=m)
+    f = Factor(lower, h, names, matrix=m, _copy=False)  # both arrays were made for this factor
     if conditioning_warning and h.digits_lost > opts.digits_warn:
         warn(ConditioningWarning,
              f"matrix is ill-conditioned: rcond {rc_s:.3g} (unit-diagonal scaling), about "
