@@ -144,3 +144,20 @@ def test_shape_and_name_errors():
         g.logpdf(np.zeros((3, 2)), missing="skip")
     with pytest.raises(InputError, match="unknown variable"):
         g.marginal(["q"])
+
+
+def test_nonfinite_rows_are_found_by_the_blocked_pass():
+    # the many-row path skips a separate scan: a NaN/inf must still be named exactly,
+    # in whichever row block it sits (block_rows=4 puts row 9 in the third block)
+    g = whiten.Gaussian([0.0, 0.0, 0.0], np.eye(3), names=["a", "b", "c"])
+    x = np.zeros((12, 3))
+    x[9, 2] = -np.inf
+    with whiten.options(block_rows=4):
+        with pytest.raises(InputError, match=r"row 9, column 'c' is -inf"):
+            g.logpdf(x)
+    x[9, 2] = 0.0
+    x[11, 0] = np.nan
+    with pytest.raises(InputError, match=r"row 11, column 'a' is nan"):
+        g.mahalanobis(x)
+    # a finite row far beyond the float range of d2 is not an input error: it is that far out
+    assert g.mahalanobis(np.array([[1e200, 0.0, 0.0]]), squared=True)[0] == np.inf

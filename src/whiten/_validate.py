@@ -102,6 +102,7 @@ def as_float_array(
     name: str = "data",
     ndim: tuple[int, ...] = (1, 2),
     allow_nan: bool = False,
+    check_finite: bool = True,
 ) -> tuple[np.ndarray, list[str] | None, Any]:
     """Convert ``data`` to a float64 array with names and index.
 
@@ -114,6 +115,10 @@ def as_float_array(
         Accepted dimensionalities.
     allow_nan : bool
         Let NaN through (missing values); infinities are always refused.
+    check_finite : bool
+        ``False`` skips the scan for NaN/inf: for callers whose own arithmetic
+        reveals non-finite rows (a NaN or inf propagates into the row's result)
+        and who then raise :func:`nonfinite_error`, saving a pass over the data.
 
     Returns
     -------
@@ -154,19 +159,25 @@ def as_float_array(
             f"{name}: expected a {' or '.join(f'{d}-D' for d in ndim)} array, got shape {values.shape}"
         )
     # one cheap pass first: the sum is finite exactly when every entry is (barring overflow)
-    if values.size and not np.isfinite(np.add.reduce(values, axis=None)):
+    if check_finite and values.size and not np.isfinite(np.add.reduce(values, axis=None)):
         v2 = values.reshape(values.shape[0], -1) if values.ndim >= 2 else values.reshape(1, -1)
         pos = first_nonfinite(v2, allow_nan=allow_nan)
         if pos is not None:
-            r, c = pos
-            what = v2[r, c]
-            if values.ndim == 1:
-                where = f"entry {c}" + (f" (index {index[c]!r})" if index is not None else "")
-            else:
-                where = describe_position(r, c, names, index)
-            hint = "" if allow_nan else " (missing values are not allowed here)"
-            raise InputError(f"{name}: {where} is {what}{hint}; every value must be a finite number")
+            raise nonfinite_error(v2, pos[0], pos[1], names, index, name=name, allow_nan=allow_nan,
+                                  one_d=values.ndim == 1)
     return values, names, index
+
+
+def nonfinite_error(v2: np.ndarray, r: int, c: int, names, index, *, name: str, allow_nan: bool = False,
+                    one_d: bool = False) -> InputError:
+    """The InputError for the non-finite entry (r, c) of the 2-D view ``v2``."""
+    what = v2[r, c]
+    if one_d:
+        where = f"entry {c}" + (f" (index {index[c]!r})" if index is not None else "")
+    else:
+        where = describe_position(r, c, names, index)
+    hint = "" if allow_nan else " (missing values are not allowed here)"
+    return InputError(f"{name}: {where} is {what}{hint}; every value must be a finite number")
 
 
 def check_names(given: Sequence[str] | None, expected: Sequence[str] | None, *, name: str = "data") -> None:
@@ -194,6 +205,7 @@ def as_rows(
     names: Sequence[str] | None = None,
     name: str = "x",
     allow_nan: bool = False,
+    check_finite: bool = True,
 ) -> tuple[np.ndarray, bool, Any]:
     """Rows of observations as a float64 (N, p) array.
 
@@ -217,7 +229,8 @@ def as_rows(
             x = x[[c for c in x.columns]]
             order = {c: i for i, c in enumerate(names)}
             x = x[sorted(x.columns, key=lambda c: order[str(c)])]
-    values, _, index = as_float_array(x, name=name, ndim=(1, 2), allow_nan=allow_nan)
+    values, _, index = as_float_array(x, name=name, ndim=(1, 2), allow_nan=allow_nan,
+                                      check_finite=check_finite)
     was_1d = values.ndim == 1
     if was_1d:
         if values.shape[0] != p:

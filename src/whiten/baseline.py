@@ -84,7 +84,8 @@ class BaselineHealth:
     @property
     def digits_trusted(self) -> float:
         """About how many significant decimal digits a distance keeps."""
-        return max(0.0, 15.95 - self.digits_lost) if math.isfinite(self.digits_lost) else 0.0
+        # the same rule as FactorHealth.digits_trusted: -log10(eps) minus the digits lost
+        return max(0.0, -math.log10(2.0 ** -52) - self.digits_lost) if math.isfinite(self.digits_lost) else 0.0
 
     @property
     def condition(self) -> float:

@@ -9,7 +9,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from ._validate import as_float_array, as_rows
+from ._validate import as_float_array, as_rows, nonfinite_error
 from .errors import ConditioningWarning, InputError
 from .linalg.factor import Factor, _factor_scaled, _health_of, cholesky
 
@@ -130,9 +130,20 @@ class Gaussian:
     def _prepare(self, x: Any, missing: str):
         if missing not in _MISSING:
             raise InputError(f"missing: expected one of {_MISSING}, got {missing!r}")
+        # with missing="error" the blocked pass itself reveals NaN/inf (they propagate into the
+        # row's distance), so the separate scan over the data is skipped; see _check_rows
         rows, one, index = as_rows(x, self.dim, names=self._names, name="x",
-                                   allow_nan=(missing == "marginalize"))
+                                   allow_nan=(missing == "marginalize"), check_finite=(missing != "error"))
         return rows, one, index
+
+    def _check_rows(self, rows: np.ndarray, d2: np.ndarray, index: Any) -> None:
+        """Raise for the first row whose non-finite distance comes from a non-finite entry."""
+        if np.isfinite(d2).all():
+            return
+        for r in np.flatnonzero(~np.isfinite(d2)):
+            bad = np.flatnonzero(~np.isfinite(rows[r]))
+            if bad.size:  # (a finite row whose distance overflows keeps inf: it is that far out)
+                raise nonfinite_error(rows, int(r), int(bad[0]), self._names, index, name="x")
 
     def evaluate(self, x: Any, *, missing: str = "error") -> RowEvaluation:
         """Squared distance, log-density and number observed, for every row.
@@ -165,6 +176,8 @@ class Gaussian:
         mask = np.isnan(rows) if missing == "marginalize" else None
         if mask is None or not mask.any():
             d2[:] = self._factor._quad_checked(rows, self._mean) if n else d2
+            if missing == "error":
+                self._check_rows(rows, d2, index)
             logpdf[:] = -0.5 * (p * _LOG_2PI + self._factor.logdet() + d2)
             return RowEvaluation(d2, logpdf, nobs, index)
         complete = ~mask.any(axis=1)
