@@ -113,6 +113,18 @@ def _is_frame(x: Any) -> bool:
     return hasattr(x, "columns") and hasattr(x, "dtypes") and hasattr(x, "to_numpy")
 
 
+def array_column_names(columns: Sequence[str] | None, p: int) -> list[str]:
+    """Names for the p columns of an array: ``columns`` checked, or ``x0, x1, ...``."""
+    if columns is None:
+        return [f"x{k}" for k in range(p)]
+    names = [str(c) for c in columns]
+    if len(names) != p:
+        raise InputError(f"columns: {len(names)} name(s) given for an array with {p} columns")
+    if len(set(names)) != p:
+        raise InputError(f"columns: names must be unique, got {names}")
+    return names
+
+
 class _Source:
     """Rows from any supported input, as raw blocks (NaN possible), readable again when possible."""
 
@@ -208,16 +220,7 @@ class _Source:
             values = arr.astype(np.float64, copy=False)
         else:  # the general converter gives the precise message
             values, _, _ = _validate.as_float_array(data, name="data", ndim=(2,), allow_nan=True)
-        p = values.shape[1]
-        if columns is None:
-            names = [f"x{k}" for k in range(p)]
-        else:
-            names = [str(c) for c in columns]
-            if len(names) != p:
-                raise InputError(f"columns: {len(names)} name(s) given for an array with {p} columns")
-            if len(set(names)) != p:
-                raise InputError(f"columns: names must be unique, got {names}")
-        self.names = names
+        self.names = array_column_names(columns, values.shape[1])
         self._array = values
         self._index = None
         self._wvals = None

@@ -101,13 +101,9 @@ def _blocks(data: Any, columns: Sequence[str] | None):
     arr = data
     if arr.ndim != 2:
         raise InputError(f"data: expected a 2-D dask array, got {arr.ndim}-D")
-    p = arr.shape[1]
-    if columns is None:
-        names = [f"x{k}" for k in range(p)]
-    else:
-        names = [str(c) for c in columns]
-        if len(names) != p:
-            raise InputError(f"columns: {len(names)} name(s) given for an array with {p} columns")
+    from ..baseline import array_column_names
+
+    names = array_column_names(columns, arr.shape[1])
     if arr.dtype.kind not in "biuf":
         raise InputError(f"data: the dask array has dtype {arr.dtype}; a numeric array is needed")
     if any(math.isnan(c) for c in arr.chunks[0]):
