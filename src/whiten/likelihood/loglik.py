@@ -297,7 +297,9 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
         chi2 = np.asarray(float(z @ z))
     else:
         chi2 = np.asarray(f.quad(rows, shift=shift)).reshape(batch)
-    ll, details = _finish(chi2, f.logdet(), n, f.health, one, details=return_details)
+    # the health (and its unscaled condition estimate) is made only for the details
+    ll, details = _finish(chi2, f.logdet(), n, f.health if return_details else None, one,
+                          details=return_details)
     if return_details:
         return details
     if index is not None:

@@ -87,28 +87,73 @@ def _digits_lost(rcond: float) -> float:
     return math.inf if rcond <= 0 else max(0.0, -math.log10(rcond))
 
 
+def _column_norms(ms: np.ndarray, s: np.ndarray) -> tuple[float, float]:
+    """1-norms of ``m`` and of ``ms = S m S`` read off ``ms`` in column slabs.
+
+    No p x p temporary and no BLAS call: numpy and scipy may each load their
+    own OpenBLAS, and a numpy matrix-vector product just before ``dpotrf``
+    leaves numpy's worker threads spinning on the cores the factorization
+    needs (measured: ``dpotrf`` at p=2000 twice as slow right after one).
+    ``|m_ij| = |ms_ij| / (s_i s_j)`` exactly, since s holds powers of two.
+    """
+    p = ms.shape[0]
+    width = max(1, (1 << 17) // max(p, 1))  # slabs of about 1 MB
+    inv_s = 1.0 / s
+    anorm = anorm_s = 0.0
+    for j0 in range(0, p, width):
+        j1 = min(p, j0 + width)
+        blk = np.abs(ms[:, j0:j1])
+        anorm_s = max(anorm_s, float(blk.sum(axis=0).max()))
+        blk *= inv_s[:, None]
+        anorm = max(anorm, float((blk.sum(axis=0) * inv_s[j0:j1]).max()))
+    return anorm, anorm_s
+
+
 def _factor_scaled(m: np.ndarray):
     """Factor m through its (power-of-two) unit-diagonal scaling; m is not modified.
 
     Returns ``(lower, scale, info, rcond_scaled, anorm)``: ``lower`` is the factor
     of m (None on failure), ``scale`` the diagonal scaling s with m_s = S m S,
-    ``anorm`` the 1-norm of m (for the unscaled condition estimate). The scaled
-    copy is factored in place, so the only n x n arrays made are that copy and
-    one temporary for the norms.
+    ``anorm`` the 1-norm of m (for the unscaled condition estimate, which is
+    computed only when asked for). The scaled copy is factored in place, so the
+    only n x n array made is that copy.
     """
     s = _pow2_scale(np.diag(m).copy())
-    absm = np.abs(m)
-    anorm = float(absm.sum(axis=0).max())
-    anorm_s = float((s * (s @ absm)).max())  # column sums of |S m S|, without forming it
-    del absm
     ms = np.multiply(m, s[:, None], order="F")
     ms *= s[None, :]
+    anorm, anorm_s = _column_norms(ms, s)
+    if not (np.isfinite(anorm) and np.isfinite(anorm_s)):
+        anorm = anorm_s = math.inf  # overflow in the sums: no condition estimate
     c, info = lapack.dpotrf(ms, lower=1, clean=1, overwrite_a=1)
     if info != 0:
         return None, s, int(info), 0.0, anorm
     rc_s = _pocon(c, anorm_s)
     c /= s[:, None]  # exact: s holds powers of two
     return c, s, 0, rc_s, anorm
+
+
+@dataclasses.dataclass(frozen=True)
+class _PendingHealth:
+    """A factor's health before the unscaled condition estimate is made.
+
+    ``digits_lost`` (from the scaled estimate, which every factorization makes)
+    is known at once; the unscaled ``rcond`` is a reported quantity, so its
+    ``dpocon`` (a fifth of a p=2000 factorization) runs on first request.
+    """
+
+    rcond_scaled: float
+    anorm: float
+    jitter: float
+    jitter_relative: float
+    method: str
+
+    @property
+    def digits_lost(self) -> float:
+        return _digits_lost(self.rcond_scaled)
+
+    def resolve(self, lower: np.ndarray) -> FactorHealth:
+        return FactorHealth(_pocon(lower, self.anorm), self.rcond_scaled, self.digits_lost,
+                            self.jitter, self.jitter_relative, self.method)
 
 
 def _name(names: Sequence[str] | None, k: int) -> str:
@@ -204,7 +249,10 @@ class Factor:
 
     @property
     def health(self) -> FactorHealth:
-        return self._health
+        h = self._health
+        if isinstance(h, _PendingHealth):
+            h = self._health = h.resolve(self._lower_f)
+        return h
 
     @property
     def jitter(self) -> float:
@@ -212,14 +260,14 @@ class Factor:
 
     @property
     def rcond(self) -> float:
-        return self._health.rcond
+        return self.health.rcond
 
     @property
     def digits_lost(self) -> float:
         return self._health.digits_lost
 
     def __repr__(self) -> str:
-        h = self._health
+        h = self.health
         return (f"Factor(dim={self.dim}, method={h.method!r}, rcond={h.rcond:.3g}, "
                 f"digits_lost={h.digits_lost:.1f}, jitter={h.jitter:.3g})")
 
@@ -409,7 +457,7 @@ class Factor:
                     rest /= c
                     w[k + 1:] = c * w[k + 1:] - s * rest
         lower = lt.T
-        h = self._health
+        h = self.health
         return Factor(lower, _health_of(lower, h.jitter, h.jitter_relative, "updated"), self._names)
 
     # ------------------------------------------------------------ subsets
@@ -425,8 +473,7 @@ class Factor:
         if info != 0:  # rounding only; cannot happen for a well-formed factor
             raise NotPositiveDefiniteError(f"sub-matrix failed to factor at pivot {info - 1}", pivot=info - 1)
         names = None if self._names is None else [self._names[i] for i in idx]
-        rc = _pocon(lower, anorm)
-        h = FactorHealth(rc, rc_s, _digits_lost(rc_s), self.jitter, self._health.jitter_relative, self._health.method)
+        h = _PendingHealth(rc_s, anorm, self.jitter, self._health.jitter_relative, self._health.method)
         return Factor(lower, h, names, matrix=m, _copy=False)
 
 
@@ -576,8 +623,7 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str
 
 
 def _finish(lower, m, rc_s, anorm, amount, rel, method, names, opts, conditioning_warning=True) -> Factor:
-    rc = _pocon(lower, anorm)
-    h = FactorHealth(rc, rc_s, _digits_lost(rc_s), float(amount), float(rel), method)
+    h = _PendingHealth(rc_s, anorm, float(amount), float(rel), method)
     f = Factor(lower, h, names, matrix=m, _copy=False)  # both arrays were made for this factor
     if conditioning_warning and h.digits_lost > opts.digits_warn:
         warn(ConditioningWarning,
