@@ -266,22 +266,25 @@ def as_square(
     # Tiles of 256 x 256 (512 KB): the check and the mirroring read each pair of tiles once
     # while they are in cache, and no n x n temporary is made besides the owned copy.
     tile = 256
-    sym = np.array(values, dtype=np.float64, order="C", copy=True)  # the caller's array is never modified
+    # the owned copy is written tile by tile straight from the caller's array (never modified)
+    sym = np.empty((n, n), dtype=np.float64, order="C")
     worst, wi, wj = 0.0, 0, 0
     for i0 in range(0, n, tile):
         i1 = min(n, i0 + tile)
         for j0 in range(0, i0 + 1, tile):
             j1 = min(n, j0 + tile)
-            low = sym[i0:i1, j0:j1]
-            d = np.abs(low - sym[j0:j1, i0:i1].T)
+            low = values[i0:i1, j0:j1]
+            d = np.abs(low - values[j0:j1, i0:i1].T)
             k = int(np.argmax(d))
             if d.flat[k] > worst:
                 worst = float(d.flat[k])
                 r, c = divmod(k, j1 - j0)
                 wi, wj = i0 + r, j0 + c
+            sym[i0:i1, j0:j1] = low
             if i0 == j0:  # diagonal tile: mirror its own lower triangle
+                out = sym[i0:i1, j0:j1]
                 iu = np.triu_indices(i1 - i0, 1)
-                low[iu] = low.T[iu]
+                out[iu] = out.T[iu]
             else:
                 sym[j0:j1, i0:i1] = low.T
     if scale > 0 and worst > rtol * scale:

@@ -87,8 +87,10 @@ def _digits_lost(rcond: float) -> float:
     return math.inf if rcond <= 0 else max(0.0, -math.log10(rcond))
 
 
-def _column_norms(ms: np.ndarray, s: np.ndarray) -> tuple[float, float]:
-    """1-norms of ``m`` and of ``ms = S m S`` read off ``ms`` in column slabs.
+def _scale_columns_and_norms(ms: np.ndarray, s: np.ndarray) -> tuple[float, float]:
+    """Scale the columns of ``ms = S m`` by s in place (so ``ms = S m S``), in column
+    slabs, and return the 1-norms of ``m`` and of ``S m S`` read off each slab
+    while it is in cache.
 
     No p x p temporary and no BLAS call: numpy and scipy may each load their
     own OpenBLAS, and a numpy matrix-vector product just before ``dpotrf``
@@ -102,7 +104,9 @@ def _column_norms(ms: np.ndarray, s: np.ndarray) -> tuple[float, float]:
     anorm = anorm_s = 0.0
     for j0 in range(0, p, width):
         j1 = min(p, j0 + width)
-        blk = np.abs(ms[:, j0:j1])
+        slab = ms[:, j0:j1]
+        slab *= s[None, j0:j1]
+        blk = np.abs(slab)
         anorm_s = max(anorm_s, float(blk.sum(axis=0).max()))
         blk *= inv_s[:, None]
         anorm = max(anorm, float((blk.sum(axis=0) * inv_s[j0:j1]).max()))
@@ -120,8 +124,7 @@ def _factor_scaled(m: np.ndarray):
     """
     s = _pow2_scale(np.diag(m).copy())
     ms = np.multiply(m, s[:, None], order="F")
-    ms *= s[None, :]
-    anorm, anorm_s = _column_norms(ms, s)
+    anorm, anorm_s = _scale_columns_and_norms(ms, s)
     if not (np.isfinite(anorm) and np.isfinite(anorm_s)):
         anorm = anorm_s = math.inf  # overflow in the sums: no condition estimate
     c, info = lapack.dpotrf(ms, lower=1, clean=1, overwrite_a=1)
