@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import heapq
 import os
 import sys
 from pathlib import Path
@@ -64,7 +63,12 @@ def add_parser(sub) -> None:
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
     p.add_argument("--report", metavar="FILE.html",
-                   help="also write a one-file HTML report (whiten.report); reads the scores back once")
+                   help="also write a one-file HTML report (whiten.report), built while scoring: "
+                        "the scores are not read back")
+    p.add_argument("--chart-points", type=int, default=200_000, metavar="N",
+                   help="rows drawn one by one on the control chart (--chart, --report); a longer file is "
+                        "pooled into bins of consecutive rows, each showing its largest d2, so no alarm "
+                        "is hidden (default: 200000)")
     p.set_defaults(func=run)
 
 
@@ -89,6 +93,7 @@ def run(args) -> int:
     from ..io.tables import table_columns
     from ..monitor.fdr import bh_adjust
     from ..monitor.limits import check_alpha
+    from ..monitor.digest import ScoreDigest
     from ..monitor.score import Scorer
 
     check_alpha(args.alpha)
@@ -96,6 +101,8 @@ def run(args) -> int:
         check_alpha(args.fdr, "--fdr")
     if args.chunksize is not None and args.chunksize < 1:
         raise InputError(f"--chunksize: must be a positive integer, got {args.chunksize}")
+    if args.chart_points < 1:
+        raise InputError(f"--chart-points: must be a positive integer, got {args.chart_points}")
     model_path = Path(args.baseline)
     if not model_path.exists():
         raise InputError(f"model file {str(model_path)!r} not found; fit one with `whiten baseline`")
@@ -126,10 +133,11 @@ def run(args) -> int:
         ps = [scorer.score_array(ch.to_numpy())["p_value"] for ch in _progress(_chunks(args, scorer.columns), "pass 1/2")]
         adjusted = bh_adjust(np.concatenate(ps)) if ps else np.empty(0)
 
-    n_rows = n_alarm = n_fdr = n_partial = n_none = 0
-    worst: list[tuple[float, int, str, float, list[tuple[str, float]]]] = []
-    d2_all, lim_all, alarm_all, labels = [], [], [], []
-    drop_cols = [f"drop:{c}" for c in scorer.columns]
+    # what the summary, the charts and the report need, in bounded memory (whiten.monitor.ScoreDigest):
+    # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
+    digest = ScoreDigest(scorer.columns, attrs=scorer.attrs(args.fdr), worst=_WORST,
+                         chart_points=args.chart_points)
+    n_rows = 0
     with atomic_open(out, "w", force=args.force, what="output") as fh:
         first = True
         for chunk in _progress(_chunks(args, scorer.columns), "scoring" if adjusted is None else "pass 2/2"):
@@ -147,39 +155,13 @@ def run(args) -> int:
                     if key == "alarm":
                         cols["p_bh"] = adj
                         cols["alarm_fdr"] = flag
-                n_fdr += int(flag.sum())
             idx = chunk.index
             frame = pd.DataFrame(cols, index=idx)
             if args.index_column is None:
                 frame.index.name = "row"
             write_csv_chunk(frame, fh, header=first)
             first = False
-            d2 = cols["d2"]
-            n_alarm += int(cols["alarm"].sum())
-            nobs = cols["n_observed"]
-            n_none += int(np.sum(nobs == 0))
-            n_partial += int(np.sum((nobs > 0) & (nobs < scorer.p)))
-            if args.chart:  # the chart needs every row's d2 (17 bytes a row); otherwise keep nothing per row
-                d2_all.append(d2)
-                lim_all.append(cols["limit"])
-                alarm_all.append(cols["alarm"])
-            if args.chart and args.index_column is not None:
-                labels.append(np.asarray(idx))
-            # keep the few worst rows (by p-value, then d2) with their top sensors
-            scored = np.flatnonzero(~np.isnan(cols["p_value"]))
-            if scored.size:
-                pick = scored[np.lexsort((-d2[scored], cols["p_value"][scored]))[:_WORST]]
-                drops = frame[drop_cols].to_numpy(dtype=float)
-                for i in pick:
-                    row = np.nan_to_num(drops[i], nan=-np.inf)
-                    top = np.argsort(-row)[:3]
-                    tops = [(scorer.columns[j], float(drops[i, j])) for j in top if np.isfinite(row[j])]
-                    item = (-float(cols["p_value"][i]), float(d2[i]), n_rows + int(i), str(idx[i]), tops,
-                            frame.iloc[int(i)] if args.contributions else None)
-                    if len(worst) < _WORST:
-                        heapq.heappush(worst, item)
-                    else:
-                        heapq.heappushpop(worst, item)
+            digest.add(cols, index=frame.index)
             n_rows += k
 
     lines = [
@@ -188,48 +170,54 @@ def run(args) -> int:
         f"limit: {scorer.limit_basis}",
         f"model accuracy: distances trusted to about {scorer.factor.health.digits_trusted:.0f} significant "
         f"digits (jitter {scorer.factor.health.jitter:g})",
-        f"alarms at alpha={scorer.alpha:g}: {n_alarm} ({100.0 * n_alarm / max(n_rows, 1):.2f}%); "
-        f"about {scorer.alpha * (n_rows - n_none):.1f} expected by chance if all rows were healthy",
+        f"alarms at alpha={scorer.alpha:g}: {digest.n_alarm} ({100.0 * digest.n_alarm / max(n_rows, 1):.2f}%); "
+        f"about {scorer.alpha * (n_rows - digest.n_none):.1f} expected by chance if all rows were healthy",
     ]
     if args.fdr is not None:
-        lines.append(f"flagged by Benjamini-Hochberg at FDR {args.fdr:g} across the file: {n_fdr}")
-    if n_partial or n_none:
-        lines.append(f"rows with missing readings: {n_partial} scored on the sensors present, "
-                     f"{n_none} with no sensor (not scored)")
+        lines.append(f"flagged by Benjamini-Hochberg at FDR {args.fdr:g} across the file: {digest.n_fdr or 0}")
+    if digest.n_partial or digest.n_none:
+        lines.append(f"rows with missing readings: {digest.n_partial} scored on the sensors present, "
+                     f"{digest.n_none} with no sensor (not scored)")
     if ignored:
         lines.append(f"columns not in the model (ignored): {', '.join(ignored)}")
-    if worst:
+    worst = digest.worst_by_p()
+    if len(worst):
         lines.append("worst rows (drop contribution: d2 lost without the sensor):")
-        for negp, d2v, _, lab, tops, _ in sorted(worst, key=lambda t: (-t[0], -t[1])):
-            top_txt = ", ".join(f"{s} {v:.3g}" for s, v in tops)
-            lines.append(f"  row {lab}: d2 {d2v:.4g}, p {-negp:.2g}; top sensors: {top_txt}")
+        drop_cols = [f"drop:{c}" for c in scorer.columns]
+        drops = worst[drop_cols].to_numpy(dtype=float)
+        for i, lab in enumerate(worst.index):
+            row = np.nan_to_num(drops[i], nan=-np.inf)
+            top = [j for j in np.argsort(-row, kind="stable")[:3] if np.isfinite(row[j])]
+            top_txt = ", ".join(f"{scorer.columns[j]} {drops[i, j]:.3g}" for j in top)
+            lines.append(f"  row {lab}: d2 {worst['d2'].iloc[i]:.4g}, p {worst['p_value'].iloc[i]:.2g}; "
+                         f"top sensors: {top_txt}")
     lines.append(f"scores written to {out}")
+    trace = digest.trace() if (args.chart or getattr(args, "report", None)) else None
+    time_axis = None
+    if trace is not None and args.index_column is not None and digest.rows_per_point == 1:
+        time_axis = _time_axis([trace.index.to_numpy()])
     if args.chart:
         from ..monitor.charts import distance_chart
 
-        frame = pd.DataFrame({"d2": np.concatenate(d2_all), "limit": np.concatenate(lim_all),
-                              "alarm": np.concatenate(alarm_all)})
-        frame.attrs.update({"alpha": scorer.alpha, "phase": scorer.phase})
-        distance_chart(frame, args.chart, force=args.force, time=_time_axis(labels),
+        distance_chart(trace, args.chart, force=args.force, time=time_axis,
                        title=f"Squared Mahalanobis distance per row: {os.path.basename(str(args.data))}")
-        lines.append(f"chart written to {args.chart}")
+        lines.append(f"chart written to {args.chart}"
+                     + (f" (each point: the largest d2 of {digest.rows_per_point} consecutive rows)"
+                        if digest.rows_per_point > 1 else ""))
     if args.contributions:
         from ..monitor.charts import contribution_chart
 
-        rows = [t[5] for t in sorted(worst, key=lambda t: (-t[0], -t[1]))[:4]]
-        if rows:
-            pick = pd.DataFrame(rows)
-            pick.attrs.update({"alpha": scorer.alpha, "phase": scorer.phase})
-            contribution_chart(pick, args.contributions, rows=len(rows), force=args.force)
+        pick = digest.worst_by_d2()
+        if len(pick):
+            contribution_chart(pick, args.contributions, rows=min(4, len(pick)), force=args.force)
             lines.append(f"contribution chart written to {args.contributions}")
         else:
             lines.append("no row could be scored: no contribution chart written")
-    if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report)
+    if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report), from the digest
         from ..report import cli_provenance, monitoring_report
 
-        scores = pd.read_csv(out, index_col=0, usecols=lambda c: not str(c).startswith("chain:"))
-        scores.attrs.update(scorer.attrs(args.fdr))
-        monitoring_report(scores, baseline, title=f"Scores of {os.path.basename(str(args.data))}",
+        monitoring_report(digest, baseline, title=f"Scores of {os.path.basename(str(args.data))}",
+                          time=time_axis,
                           provenance=cli_provenance(args, inputs=[args.data], model=args.baseline)
                           ).write(args.report, force=args.force)
         lines.append(f"report written to {args.report}")

@@ -6,12 +6,13 @@ exact laws of the squared distance, :mod:`~whiten.monitor.fdr` batch control,
 """
 
 from .contributions import chain_terms, drop_terms
+from .digest import ScoreDigest
 from .fdr import bh_adjust, bh_threshold
 from .limits import PHASES, t2_law, t2_limit, t2_pvalue
 from .score import KINDS, Scorer, column_name, score
 
 __all__ = [
-    "score", "Scorer", "KINDS", "column_name",
+    "score", "Scorer", "ScoreDigest", "KINDS", "column_name",
     "PHASES", "t2_law", "t2_limit", "t2_pvalue",
     "bh_adjust", "bh_threshold",
     "chain_terms", "drop_terms",

@@ -78,7 +78,9 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     Parameters
     ----------
     scores : pandas.DataFrame
-        Output of :func:`whiten.monitor.score`.
+        Output of :func:`whiten.monitor.score`, or the trace of a long run
+        (:meth:`whiten.monitor.ScoreDigest.trace`), whose points may each pool
+        several rows (said in the chart's subtitle).
     path : path of the PNG to write
     time : array_like, optional
         x positions (timestamps or numbers); default: row number.
@@ -108,7 +110,11 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     _need(scores, ["d2", "limit", "alarm"])
     check_writable(path, force=force, what="chart")
     n = len(scores)
-    x = np.arange(n) if time is None else np.asarray(time)
+    pooled = int(scores.attrs.get("rows_per_point", 1) or 1)  # a ScoreDigest trace of a long run
+    if time is None and pooled > 1 and "first_row" in scores.columns:
+        x = scores["first_row"].to_numpy()
+    else:
+        x = np.arange(n) if time is None else np.asarray(time)
     if len(x) != n:
         raise InputError(f"time: expected {n} positions, got {len(x)}")
     d2 = scores["d2"].to_numpy(dtype=float)
@@ -122,19 +128,23 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     ax = fig.add_subplot(1, 1, 1)
     _style(ax)
     ax.set_yscale("log")
+    n_alarm = int(scores.attrs.get("n_alarm", alarm.sum())) if pooled > 1 else int(alarm.sum())
+    n_unscored = int(scores.attrs.get("n_not_scored", (~scored).sum())) if pooled > 1 else int((~scored).sum())
     ok = scored & ~alarm
     ax.plot(x[scored], shown[scored], color=_OK, linewidth=0.6, alpha=0.7, zorder=1)
     ax.scatter(x[ok], shown[ok], s=7, color=_OK, zorder=2, label="row")
     ax.step(x, lim, where="mid", color=_LIMIT, linewidth=1.4, zorder=3, label="alarm limit")
     if alarm.any():
         ax.scatter(x[alarm], shown[alarm], s=22, marker="D", color=_ALARM, zorder=4,
-                   label=f"alarm ({int(alarm.sum())})")
+                   label=f"alarm ({n_alarm})")
     if (~scored).any():
         ax.plot(x[~scored], np.full((~scored).sum(), floor), linestyle="none", marker="|",
-                color=_INK, markersize=9, label=f"not scored ({int((~scored).sum())})")
+                color=_INK, markersize=9, label=f"not scored ({n_unscored})")
     alpha = scores.attrs.get("alpha")
     phase = scores.attrs.get("phase")
     sub = f"limit at alpha={alpha:g}, phase {phase!r}" if alpha is not None else ""
+    if pooled > 1:
+        sub = (sub + "; " if sub else "") + f"each point: the largest d2 of {pooled} consecutive rows"
     ax.set_title(title or "Squared Mahalanobis distance per row", loc="left", fontsize=10, color=_INK)
     if sub:
         ax.text(1.0, 1.02, sub, transform=ax.transAxes, ha="right", fontsize=8, color=_INK)

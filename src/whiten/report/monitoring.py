@@ -176,9 +176,11 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
 
     Parameters
     ----------
-    scores : pandas.DataFrame
-        Output of :func:`whiten.monitor.score` (or ``Baseline.score``); its
-        ``attrs`` carry alpha, the phase and the law used.
+    scores : pandas.DataFrame or ScoreDigest
+        Output of :func:`whiten.monitor.score` (or ``Baseline.score``), whose
+        ``attrs`` carry alpha, the phase and the law used; or the
+        :class:`~whiten.monitor.ScoreDigest` of a streamed run (what
+        ``whiten score --report`` passes: no score table is held in memory).
     baseline : Baseline or Gaussian, optional
         Adds the condition, jitter and estimator route to the trust block.
     provenance : Provenance, optional
@@ -187,7 +189,7 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
     worst : int
         Rows listed (and charted) in "worst rows".
     time : array_like, optional
-        x positions of the control chart (default: row number).
+        x positions of the control chart, one per chart point (default: row number).
     charts : bool
         Draw the control chart and the contribution bars (matplotlib).
 
@@ -219,18 +221,20 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
     >>> [f.value for f in rep.figures if f.key == "alarms"] == [int(s.alarm.sum())]
     True
     """
-    _check_scores(scores)
-    attrs = dict(scores.attrs)
-    d2 = scores["d2"].to_numpy(dtype=float)
-    alarm = scores["alarm"].to_numpy(dtype=bool)
-    scored = ~np.isnan(d2)
-    n, n_scored, n_alarm = len(scores), int(scored.sum()), int(alarm.sum())
+    from ..monitor.digest import ScoreDigest
+
+    if isinstance(scores, ScoreDigest):
+        dig = scores
+    else:
+        _check_scores(scores)
+        dig = ScoreDigest.from_frame(scores, worst=max(int(worst), 4))
+    if dig.n_rows == 0:
+        raise InputError("scores: no rows; there is nothing to report")
+    attrs = dict(dig.attrs)
+    n, n_scored, n_alarm = dig.n_rows, dig.n_scored, dig.n_alarm
     alpha = attrs.get("alpha")
-    sensors = attrs.get("sensors") or [str(c)[5:] for c in scores.columns if str(c).startswith("drop:")]
-    p = len(sensors)
-    nobs = scores["n_observed"].to_numpy() if "n_observed" in scores.columns else np.full(n, p)
-    n_none = int(np.sum(nobs == 0))
-    n_partial = int(np.sum((nobs > 0) & (nobs < p))) if p else 0
+    p = len(dig.sensors)
+    n_none, n_partial = dig.n_none, dig.n_partial
 
     rep = Report(title or "Sensor rows screened against a baseline", job="monitoring",
                  lede=(f"{n} rows scored on {p} sensors"
@@ -242,11 +246,11 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
     if alpha is not None:
         rep.key_figure("Expected by chance", float(alpha) * n_scored, digits=3, key="expected",
                        note="alarms a batch of healthy rows would give")
-    if "alarm_fdr" in scores.columns:
-        n_fdr = int(scores["alarm_fdr"].to_numpy(dtype=bool).sum())
+    if dig.n_fdr is not None:
+        n_fdr = dig.n_fdr
         rep.key_figure("Flagged by false-discovery control", n_fdr, key="fdr-flags",
                        note=f"Benjamini-Hochberg at q = {attrs.get('fdr')}", tone="alert" if n_fdr else "good")
-    table = worst_rows(scores, worst) if n_scored else None
+    table = worst_rows(dig.worst_by_p(), worst) if n_scored else None
     if table is not None and len(table):
         lab = table.index[0]
         rep.key_figure("Largest distance", float(table["d2"].iloc[0]), digits=4, key="worst-d2",
@@ -270,30 +274,35 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
                       "broken relation between sensors rather than one odd reading.")
         sec.table(table, f"The {len(table)} rows with the smallest p-values", key="worst-rows",
                   formats={"d2": ".5g", "limit": ".4g", "p_value": ".3g"})
-    if alarm.any() and "top_contributor" in scores.columns:
-        lead = scores.loc[alarm, "top_contributor"].astype(str).value_counts()
+    if n_alarm and dig.leaders:
         import pandas as pd
 
-        frame = pd.DataFrame({"alarms it leads": lead.to_numpy()},
-                             index=pd.Index(lead.index, name="sensor"))
+        lead = dig.leaders.most_common()
+        frame = pd.DataFrame({"alarms it leads": [c for _, c in lead]},
+                             index=pd.Index([s for s, _ in lead], name="sensor"))
         rep.section("Which sensors lead the alarms", key="leaders").table(
             frame, "Alarms counted by the sensor with the largest contribution", key="leaders")
 
     if charts and n_scored:
         from ..monitor.charts import contribution_chart, distance_chart
 
+        trace = dig.trace()
+        pooled = dig.rows_per_point
         with tempfile.TemporaryDirectory(prefix="whiten-report-") as tmp:
-            chart = distance_chart(scores, Path(tmp) / "d2.png", time=time)
+            chart = distance_chart(trace, Path(tmp) / "d2.png", time=time)
             above = f"{n_alarm} rows are above it" if n_alarm else "no row is above it"
+            each = (f" (each point is the largest of {pooled} consecutive rows, so every alarm stays visible)"
+                    if pooled > 1 else "")
             sec = rep.section("Control chart", key="chart")
-            sec.figure(chart, alt=(f"Control chart of the squared Mahalanobis distance of {n} rows on a log "
-                                   f"scale with the alarm limit as a line; {above}; the largest distance is "
-                                   f"{format_number(np.nanmax(d2), 4)}."),
+            sec.figure(chart, alt=(f"Control chart of the squared Mahalanobis distance of {n} rows{each} on a "
+                                   f"log scale with the alarm limit as a line; {above}; the largest distance is "
+                                   f"{format_number(dig.d2_max, 4)}."),
                        caption=f"Squared distance per row and the alarm limit ({attrs.get('limit_basis', '')}).",
                        key="control-chart")
-            if any(str(c).startswith("drop:") for c in scores.columns):
+            bars_from = dig.worst_by_d2()
+            if any(str(c).startswith("drop:") for c in bars_from.columns):
                 k = min(4, n_scored)
-                bars = contribution_chart(scores, Path(tmp) / "drop.png", rows=k)
+                bars = contribution_chart(bars_from, Path(tmp) / "drop.png", rows=k)
                 sec.figure(bars, alt=(f"Bar charts for the {k} rows with the largest distance: for each sensor, "
                                       "how much the squared distance falls when that sensor is left out, with "
                                       "its plain standardized deviation written beside the bar."),
