@@ -68,8 +68,10 @@ def test_ill_conditioned_baseline_takes_the_tsqr_route_on_the_cluster(client):
     rng = np.random.default_rng(7)
     t = rng.normal(size=(6000, 1))
     x = 1e8 + np.hstack([t, t + 1e-5 * rng.normal(size=(6000, 1)), rng.normal(size=(6000, 1))])
-    ref = whiten.fit_baseline(x)
-    b = whiten.fit_baseline(da.from_array(x, chunks=(1000, 3)))
+    with pytest.warns(whiten.ConditioningWarning, match="ill-conditioned"):
+        ref = whiten.fit_baseline(x)
+    with pytest.warns(whiten.ConditioningWarning, match="ill-conditioned"):
+        b = whiten.fit_baseline(da.from_array(x, chunks=(1000, 3)))
     assert ref.health.path == b.health.path == "tsqr" and b.health.passes == 2
     assert _rel(b.cov, ref.cov) < 1e-10
     probe = x[:50] + 1e-5
@@ -131,14 +133,45 @@ def test_linear_fit_on_dask_equals_in_memory(client):
     assert np.allclose(fit.predict(x[:5]), ref.predict(x[:5]), rtol=1e-10)
 
 
+def test_weighted_fit_on_dask_equals_in_memory_and_statsmodels(client):
+    # reference: the in-memory WLS fit (which tests/regression checks against statsmodels WLS), and
+    # statsmodels WLS itself for the coefficients, standard errors and log-likelihood
+    import statsmodels.api as sm
+
+    rng = np.random.default_rng(12)
+    n = 20000
+    x = rng.normal(size=(n, 3)) * [2.0, 0.5, 40.0]
+    w = rng.uniform(0.2, 5.0, size=n)
+    y = x @ [1.5, -3.0, 0.02] + 4.0 + rng.normal(size=n) / np.sqrt(w)
+    cols = ["load", "speed", "ambient"]
+    ref = whiten.fit_linear(pd.DataFrame(x, columns=cols), y, weights=w)
+    sm_fit = sm.WLS(y, sm.add_constant(x), weights=w).fit()
+    xd = dd.from_pandas(pd.DataFrame(x, columns=cols), npartitions=4)
+    yd = dd.from_pandas(pd.Series(y, name="y"), npartitions=4)
+    wd = dd.from_pandas(pd.Series(w, name="w"), npartitions=4)
+    for weights in (wd, da.from_array(w, chunks=3000), w):
+        fit = whiten.fit_linear(xd, yd, weights=weights)
+        assert _rel(fit.coef, ref.coef) < 1e-10 and _rel(fit.coef, sm_fit.params) < 1e-10
+        assert np.allclose(fit.stderr, sm_fit.bse, rtol=1e-9, atol=0)
+        assert fit.r_squared == pytest.approx(sm_fit.rsquared, rel=1e-10)
+        assert fit.loglik == pytest.approx(sm_fit.llf, rel=1e-12)
+        assert fit.weighted == "wls"
+    assert np.allclose(fit.residuals.compute(), ref.residuals, rtol=0, atol=1e-9 * np.abs(y).max())
+    bad = w.copy()
+    bad[15001] = -1.0
+    with pytest.raises(InputError, match=r"weights: row 15001 has weight -1"):
+        whiten.fit_linear(xd, yd, weights=da.from_array(bad, chunks=5000))
+
+
 def test_dask_refusals_are_clear(client, plant):
     arr = da.from_array(plant.to_numpy(), chunks=(5000, 5))
     with pytest.raises(InputError, match="not available for dask input"):
         whiten.fit_baseline(arr, estimator="robust")
     with pytest.raises(InputError, match="chunksize: not used with dask input"):
         whiten.fit_baseline(arr, chunksize=10)
-    with pytest.raises(InputError, match="weights: not available with dask input"):
-        whiten.fit_linear(arr[:, :2], arr[:, 2], weights=np.ones(len(plant)))
-    fit = whiten.fit_linear(arr[:, :2], arr[:, 2])
+    with pytest.raises(InputError, match="ridge: not available with dask input"):
+        whiten.fit_linear(arr[:, :2], arr[:, 2], ridge=0.1)
+    with pytest.warns(whiten.ConditioningWarning, match="nearly linearly dependent"):
+        fit = whiten.fit_linear(arr[:, :2], arr[:, 2])
     with pytest.raises(InputError, match="needs the rows in memory"):
         fit.influence()

@@ -326,6 +326,7 @@ class _DaskDesign:
         self._n = int(n)
         self.index = index
         self.sqrt_w = None
+        self.sum_log_sqrt_w = 0.0
         self.factor = None
 
     @property
@@ -349,7 +350,8 @@ class _DaskDesign:
     whitened = whitened_blocks = augmented_blocks = raw_rows = _in_memory_only
 
 
-def _aug_block(xb, yb, intercept: bool, offset: int, names: Sequence[str]) -> np.ndarray:
+def _aug_block(xb, yb, intercept: bool, offset: int, names: Sequence[str], wb=None) -> np.ndarray:
+    """``[1 X y]`` of one block, rows scaled by sqrt(w) when weighted (checked, the row named)."""
     xb = np.asarray(xb, dtype=np.float64)
     yb = np.asarray(yb, dtype=np.float64).reshape(-1)
     for what, arr, labels in (("X", xb, names), ("y", yb[:, None], ["y"])):
@@ -363,13 +365,25 @@ def _aug_block(xb, yb, intercept: bool, offset: int, names: Sequence[str]) -> np
         blk[:, 0] = 1.0
     blk[:, k0:-1] = xb
     blk[:, -1] = yb
+    if wb is not None:
+        blk *= _sqrt_weights(wb, offset)[:, None]
     return blk
 
 
-def _r_block(xb, yb, intercept, offset, names):
+def _sqrt_weights(wb, offset: int) -> np.ndarray:
+    w = np.asarray(wb, dtype=np.float64).reshape(-1)
+    bad = np.flatnonzero(~(np.isfinite(w) & (w > 0)))
+    if bad.size:
+        r = int(bad[0])
+        raise InputError(f"weights: row {offset + r} has weight {w[r]:g}; weights must be finite and positive "
+                         "(to exclude a row, remove it explicitly)")
+    return np.sqrt(w)
+
+
+def _r_block(xb, yb, intercept, offset, names, wb=None):
     from ..regression.qr import _r_of
 
-    return _r_of(_aug_block(xb, yb, intercept, offset, names))
+    return _r_of(_aug_block(xb, yb, intercept, offset, names, wb))
 
 
 def _r_stack(a, b):
@@ -378,11 +392,11 @@ def _r_stack(a, b):
     return _r_of(np.asfortranarray(np.vstack([a, b])))
 
 
-def _pass_block(xb, yb, intercept, offset, names, kept, sw, x, kind, want_grad):
-    """(A^T r, r^T r) of one block, the residual in extended precision when refining."""
+def _pass_block(xb, yb, intercept, offset, names, kept, sw, x, kind, want_grad, wb=None):
+    """(A^T r, r^T r) of one (weighted) block, the residual in extended precision when refining."""
     from ..regression import _extended
 
-    blk = _aug_block(xb, yb, intercept, offset, names)
+    blk = _aug_block(xb, yb, intercept, offset, names, wb)
     ab = blk[:, kept] * sw[None, :]
     yb_ = blk[:, -1]
     rb = yb_ - ab @ x if kind == "none" else _extended.residual(ab, x, yb_, None, kind)
@@ -397,10 +411,19 @@ def _add_pass(a, b):
 
 
 def _resid_block(xb, yb, intercept, kept, sw, x):
+    """Residuals ``y - X b`` of one block in y units (weights do not enter: they are the whitening only)."""
     xb = np.asarray(xb, dtype=np.float64)
     yb = np.asarray(yb, dtype=np.float64).reshape(-1)
     a = np.column_stack([np.ones(xb.shape[0]), xb]) if intercept else xb
     return yb - (a[:, kept] * sw[None, :]) @ x
+
+
+def _add(a, b):
+    return a + b
+
+
+def _sum_log_sqrt_w(wb, offset: int) -> float:
+    return float(np.sum(np.log(_sqrt_weights(wb, offset))))
 
 
 def _xy_blocks(X: Any, y: Any):
@@ -443,9 +466,30 @@ def _xy_blocks(X: Any, y: Any):
     return names, xa, ya
 
 
-def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, rank_policy: str = "nan", rank_tol=None,
-                    refine: Any = "auto"):
-    """:func:`whiten.fit_linear` for dask arrays / DataFrames (ordinary least squares).
+def _weights_blocks(weights: Any, xa):
+    """The weights as a dask array chunked like the rows of X."""
+    import dask.array as da
+
+    if hasattr(weights, "to_dask_array"):
+        wa = weights.to_dask_array(lengths=True)
+    elif is_dask_collection(weights):
+        wa = weights
+    else:
+        wa = da.from_array(np.asarray(weights, dtype=np.float64))
+    if wa.ndim == 2 and wa.shape[1] == 1:
+        wa = wa[:, 0]
+    if wa.ndim != 1:
+        raise InputError(f"weights: expected one weight per row, got shape {wa.shape}")
+    if any(math.isnan(c) for c in wa.chunks[0]):
+        wa = wa.compute_chunk_sizes()
+    if wa.shape[0] != xa.shape[0]:
+        raise InputError(f"weights: has {wa.shape[0]} entries but X has {xa.shape[0]} rows")
+    return wa.rechunk((xa.chunks[0],))
+
+
+def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, weights: Any = None, rank_policy: str = "nan",
+                    rank_tol=None, refine: Any = "auto"):
+    """:func:`whiten.fit_linear` for dask arrays / DataFrames (ordinary or weighted least squares).
 
     Returns a :class:`whiten.LinearFit` whose coefficients, standard errors,
     R², tests, VIFs, collinearity findings and health equal the in-memory fit
@@ -457,8 +501,11 @@ def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, rank_policy: str 
     (a Householder QR per block, then pairwise QR of stacked R's in a balanced
     tree: Demmel, Grigori, Hoemmen & Langou, 2012). Refinement, when it runs,
     is one more distributed pass per step returning ``A^T r`` computed in
-    extended precision. Weights, GLS, ridge, influence measures and
-    minimum-norm fits need the rows in memory and are refused with a message.
+    extended precision. ``weights`` (a dask array or Series, or an array,
+    aligned with the rows) scale each block's rows by ``sqrt(w)`` on the
+    worker that holds them. GLS with a dense error covariance, ridge,
+    influence measures and minimum-norm fits need the rows in memory and are
+    refused with a message.
     """
     from dask import delayed
     import dask.array as da
@@ -473,6 +520,7 @@ def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, rank_policy: str 
     if refine not in ("auto", True, False):
         raise InputError(f"refine: choose 'auto', True or False, got {refine!r}")
     names, xa, ya = _xy_blocks(X, y)
+    wa = None if weights is None else _weights_blocks(weights, xa)
     design = _DaskDesign(names, intercept, xa.shape[0])
     n, p = design.n, design.p
     if n < p:
@@ -481,8 +529,18 @@ def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, rank_policy: str 
     xb = list(xa.to_delayed().ravel())
     yb = list(ya.to_delayed().ravel())
     offsets = np.concatenate([[0], np.cumsum(xa.chunks[0])[:-1]]).astype(int).tolist()
-    rs = [delayed(_r_block)(a, b, intercept, o, names) for a, b, o in zip(xb, yb, offsets)]
-    raug = np.asarray(tree_reduce(rs, _r_stack).compute())
+    wb = [None] * len(xb) if wa is None else list(wa.to_delayed().ravel())
+    rs = [delayed(_r_block)(a, b, intercept, o, names, w) for a, b, o, w in zip(xb, yb, offsets, wb)]
+    if wa is None:
+        raug = np.asarray(tree_reduce(rs, _r_stack).compute())
+    else:
+        logs = [delayed(_sum_log_sqrt_w)(w, o) for w, o in zip(wb, offsets)]
+        import dask
+
+        raug, slw = dask.compute(tree_reduce(rs, _r_stack), tree_reduce(logs, _add))  # one pass, both sums
+        raug = np.asarray(raug)
+        design.sqrt_w = wa  # lazy: marks the fit as weighted; never pulled in
+        design.sum_log_sqrt_w = float(slw)
     if raug.shape[0] < p + 1:
         raug = np.vstack([raug, np.zeros((p + 1 - raug.shape[0], p + 1))])
     raug = raug * np.where(np.diag(raug) < 0, -1.0, 1.0)[:, None]
@@ -490,8 +548,8 @@ def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, rank_policy: str 
 
     def make_pass(kept, sw, kind):
         def residual_pass(x, want_grad):
-            parts = [delayed(_pass_block)(a, b, intercept, o, names, kept, sw, x, kind, want_grad)
-                     for a, b, o in zip(xb, yb, offsets)]
+            parts = [delayed(_pass_block)(a, b, intercept, o, names, kept, sw, x, kind, want_grad, w)
+                     for a, b, o, w in zip(xb, yb, offsets, wb)]
             grad, rss = tree_reduce(parts, _add_pass).compute()
             last["rss"] = rss
             last["x"] = x

@@ -437,6 +437,11 @@ class _Design:
     def all_names(self) -> list:
         return ([INTERCEPT_NAME] if self.intercept else []) + list(self.names)
 
+    @property
+    def sum_log_sqrt_w(self) -> float:
+        """``sum(log sqrt(w))`` = ``0.5 sum(log w)``, the weights' term of the log-likelihood."""
+        return 0.0 if self.sqrt_w is None else float(np.sum(np.log(self.sqrt_w)))
+
     def raw_rows(self, a: int, b: int) -> np.ndarray:
         xb = self.x[a:b]
         if self.intercept:
@@ -858,14 +863,15 @@ def fit_linear(
 
     if is_dask_collection(X) or is_dask_collection(y):
         # the dask engine: R of [1 X y] reduced on the workers, residual passes there too
-        unused = [k for k, v in (("weights", weights), ("error_cov", error_cov), ("ridge", ridge))
+        unused = [k for k, v in (("error_cov", error_cov), ("ridge", ridge))
                   if v is not None] + (["standardize"] if standardize else [])
         if unused:
-            raise InputError(f"{', '.join(unused)}: not available with dask input; compute the arrays first")
+            raise InputError(f"{', '.join(unused)}: not available with dask input; compute the arrays first "
+                             "(weights are: pass them as a dask array or Series aligned with the rows)")
         from ..parallel.dask import fit_linear_dask
 
-        return fit_linear_dask(X, y, intercept=intercept, rank_policy=rank_policy, rank_tol=rank_tol,
-                               refine=refine)
+        return fit_linear_dask(X, y, intercept=intercept, weights=weights, rank_policy=rank_policy,
+                               rank_tol=rank_tol, refine=refine)
     design = _prepare(X, y, intercept, weights, error_cov)
     if ridge is not None:
         from .ridge import fit_ridge
@@ -1074,7 +1080,7 @@ def _loglik(design: _Design, rss: float, n: int) -> float:
         return math.inf
     ll = -0.5 * n * (math.log(2 * math.pi * rss / n) + 1.0)
     if design.sqrt_w is not None:
-        ll += float(np.sum(np.log(design.sqrt_w)))  # 0.5 * sum(log w)
+        ll += design.sum_log_sqrt_w  # 0.5 * sum(log w)
     elif design.factor is not None:
         ll -= 0.5 * design.factor.logdet()
     return ll
