@@ -47,18 +47,22 @@ def table_format(path: str | os.PathLike) -> str:
         f"data file {str(path)!r}: cannot tell the format from its name; use a .csv, .tsv or .parquet file")
 
 
-def _check_file(path: str | os.PathLike) -> Path:
+def existing_file(path: str | os.PathLike, *, missing: str = "data file {path!r} not found",
+                  folder: str = "data path {path!r} is a folder; pass a CSV or Parquet file") -> Path:
+    """``path`` as a Path when it names an existing file; else InputError with the message given
+    (``{path!r}`` is filled in)."""
     p = Path(path)
     if not p.exists():
-        raise InputError(f"data file {str(p)!r} not found")
+        raise InputError(missing.format(path=str(p)))
     if p.is_dir():
-        raise InputError(f"data path {str(p)!r} is a folder; pass a CSV or Parquet file")
+        raise InputError(folder.format(path=str(p)))
     return p
+
 
 
 def table_columns(path: str | os.PathLike) -> list[str]:
     """Column names of a table file, reading only its header (or Parquet schema)."""
-    p = _check_file(path)
+    p = existing_file(path)
     fmt = table_format(p)
     if fmt == "parquet":
         pq = _pyarrow_parquet()
@@ -180,7 +184,7 @@ def read_table_chunks(path: str | os.PathLike, columns: Sequence[str] | None = N
     >>> [len(c) for c in t.read_table_chunks(f, chunksize=2)]
     [2, 1]
     """
-    p = _check_file(path)
+    p = existing_file(path)
     fmt = table_format(p)
     chunksize = DEFAULT_CHUNKSIZE if chunksize is None else int(chunksize)
     if chunksize < 1:

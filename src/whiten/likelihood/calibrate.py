@@ -19,6 +19,7 @@ import numpy as np
 from .._settings import current
 from .._validate import as_float_array
 from .._warn import warn
+from .._records import fields_to_dict
 from ..errors import ConditioningWarning, InputError, RankDeficiencyWarning
 from ..linalg.factor import Factor, FactorHealth
 from .loglik import as_covariance
@@ -130,17 +131,7 @@ class CalibrationFit:
     _problem: Any = dataclasses.field(default=None, repr=False, compare=False)
 
     def to_dict(self) -> dict:
-        out = {}
-        for f in dataclasses.fields(self):
-            if f.name.startswith("_"):
-                continue
-            v = getattr(self, f.name)
-            if isinstance(v, np.ndarray):
-                v = v.tolist()
-            elif isinstance(v, JacobianHealth):
-                v = v.to_dict()
-            out[f.name] = v
-        return out
+        return fields_to_dict(self)
 
     def to_frame(self):
         """One row per parameter: estimate, std_error, rel_std_error."""

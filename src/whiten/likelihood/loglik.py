@@ -29,6 +29,7 @@ import numpy as np
 
 from .._settings import current
 from .._validate import as_float_array, as_rows
+from .._records import fields_to_dict
 from ..errors import InputError, NotPositiveDefiniteError
 from ..linalg.factor import Factor, FactorHealth, cholesky
 from ..linalg.structured import StructuredCovariance
@@ -73,15 +74,7 @@ class LikelihoodSummary:
     health: FactorHealth | None = None
 
     def to_dict(self) -> dict:
-        out = {}
-        for f in dataclasses.fields(self):
-            v = getattr(self, f.name)
-            if isinstance(v, np.ndarray):
-                v = v.tolist()
-            elif isinstance(v, FactorHealth):
-                v = v.to_dict()
-            out[f.name] = v
-        return out
+        return fields_to_dict(self)
 
     def to_frame(self):
         """One row per residual vector: loglik, chi2, dof, p_value, log_p_value, logdet."""

@@ -445,20 +445,9 @@ def _xy_blocks(X: Any, y: Any):
     else:
         xa = da.from_array(np.asarray(X, dtype=np.float64))
         names = [f"x{j}" for j in range(xa.shape[1])]
-    if hasattr(y, "to_dask_array"):
-        ya = y.to_dask_array(lengths=True)
-    elif is_dask_collection(y):
-        ya = y
-    else:
-        ya = da.from_array(np.asarray(y, dtype=np.float64))
-    if ya.ndim == 2 and ya.shape[1] == 1:
-        ya = ya[:, 0]
-    if ya.ndim != 1:
-        raise InputError(f"y: expected one response column, got shape {ya.shape}")
+    ya = _row_vector(y, "y", "one response column")
     if any(math.isnan(c) for c in xa.chunks[0]):
         xa = xa.compute_chunk_sizes()
-    if any(math.isnan(c) for c in ya.chunks[0]):
-        ya = ya.compute_chunk_sizes()
     if xa.shape[0] != ya.shape[0]:
         raise InputError(f"y: has {ya.shape[0]} rows but X has {xa.shape[0]}; they must describe the same rows")
     xa = xa.rechunk({1: -1})
@@ -466,22 +455,28 @@ def _xy_blocks(X: Any, y: Any):
     return names, xa, ya
 
 
-def _weights_blocks(weights: Any, xa):
-    """The weights as a dask array chunked like the rows of X."""
+def _row_vector(v: Any, what: str, expect: str):
+    """One value per row as a 1-D dask array (from a dask Series/array or an in-memory array), sizes known."""
     import dask.array as da
 
-    if hasattr(weights, "to_dask_array"):
-        wa = weights.to_dask_array(lengths=True)
-    elif is_dask_collection(weights):
-        wa = weights
+    if hasattr(v, "to_dask_array"):
+        va = v.to_dask_array(lengths=True)
+    elif is_dask_collection(v):
+        va = v
     else:
-        wa = da.from_array(np.asarray(weights, dtype=np.float64))
-    if wa.ndim == 2 and wa.shape[1] == 1:
-        wa = wa[:, 0]
-    if wa.ndim != 1:
-        raise InputError(f"weights: expected one weight per row, got shape {wa.shape}")
-    if any(math.isnan(c) for c in wa.chunks[0]):
-        wa = wa.compute_chunk_sizes()
+        va = da.from_array(np.asarray(v, dtype=np.float64))
+    if va.ndim == 2 and va.shape[1] == 1:
+        va = va[:, 0]
+    if va.ndim != 1:
+        raise InputError(f"{what}: expected {expect}, got shape {va.shape}")
+    if any(math.isnan(c) for c in va.chunks[0]):
+        va = va.compute_chunk_sizes()
+    return va
+
+
+def _weights_blocks(weights: Any, xa):
+    """The weights as a dask array chunked like the rows of X."""
+    wa = _row_vector(weights, "weights", "one weight per row")
     if wa.shape[0] != xa.shape[0]:
         raise InputError(f"weights: has {wa.shape[0]} entries but X has {xa.shape[0]} rows")
     return wa.rechunk((xa.chunks[0],))

@@ -54,12 +54,10 @@ def sha256_file(path: str | os.PathLike) -> str:
 
 
 def _existing(path: str | os.PathLike) -> Path:
-    p = Path(path)
-    if not p.exists():
-        raise InputError(f"report: file {str(p)!r} not found; cannot fingerprint it")
-    if p.is_dir():
-        raise InputError(f"report: {str(p)!r} is a folder; pass the file that was read")
-    return p
+    from ..io.tables import existing_file
+
+    return existing_file(path, missing="report: file {path!r} not found; cannot fingerprint it",
+                         folder="report: {path!r} is a folder; pass the file that was read")
 
 
 def _table_kind(p: Path) -> tuple[str | None, Any]:
