@@ -856,14 +856,17 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
 
     if is_dask_collection(data):
         # the dask engine: per-block states reduced in a tree on the workers
-        unused = [k for k, v in (("chunksize", chunksize), ("weights", weights), ("index_column", index_column))
-                  if v is not None]
+        unused = [k for k, v in (("chunksize", chunksize), ("index_column", index_column)) if v is not None]
         if unused:
             raise InputError(f"{', '.join(unused)}: not used with dask input (dask's own partitions are the "
-                             "chunks; put weights or labels in the collection's index/columns)")
+                             "chunks; labels are the collection's index)")
+        if weights is not None and not isinstance(weights, str):
+            raise InputError("weights: with dask input, pass the name of a weights column of the dask DataFrame "
+                             "(an in-memory array could not be matched to the partitions' rows)")
         from .parallel.dask import fit_baseline_dask
 
-        return fit_baseline_dask(data, estimator=estimator, columns=columns, missing=missing, path=path)
+        return fit_baseline_dask(data, estimator=estimator, columns=columns, missing=missing, path=path,
+                                 weights=weights)
     if missing not in _MISSING:
         raise InputError(f"missing: expected one of {_MISSING}, got {missing!r}")
     wvals, wcol = _weights_array(weights)

@@ -63,6 +63,28 @@ def test_baseline_from_dask_array_and_frame_equals_in_memory(client, plant):
         assert b.health.n_chunks > 1
 
 
+def test_weighted_baseline_on_dask_equals_in_memory_and_numpy_fweights(client, plant):
+    # reference: numpy.cov with integer frequency weights (divisor sum(w) - 1), and the in-memory fit
+    rng = np.random.default_rng(5)
+    df = plant.assign(reps=rng.integers(0, 4, size=len(plant)).astype(float))
+    ref = whiten.fit_baseline(df, weights="reps")
+    b = whiten.fit_baseline(dd.from_pandas(df, npartitions=5), weights="reps")
+    x = plant.to_numpy()
+    cov_np = np.cov(x, rowvar=False, fweights=df["reps"].to_numpy().astype(int))
+    assert b.columns == list(plant.columns) and b.params["weighted"] and b.params["engine"] == "dask"
+    assert _rel(b.cov, cov_np) < 1e-10 and _rel(b.cov, ref.cov) < 1e-10
+    assert _rel(b.mean, np.average(x, axis=0, weights=df["reps"])) < 1e-12
+    assert b.n == ref.n and b.weight_sum == ref.weight_sum == df["reps"].sum()
+    bad = df.copy()
+    bad.iloc[9000, -1] = -2.0
+    with pytest.raises(InputError, match=r"weights: partition 1, index 19000 has weight -2"):
+        whiten.fit_baseline(dd.from_pandas(bad, npartitions=5), weights="reps")
+    with pytest.raises(InputError, match="pass the name of a weights column"):
+        whiten.fit_baseline(dd.from_pandas(df, npartitions=5), weights=df["reps"].to_numpy())
+    with pytest.raises(InputError, match="column 'w' not found"):
+        whiten.fit_baseline(dd.from_pandas(df, npartitions=5), weights="w")
+
+
 def test_ill_conditioned_baseline_takes_the_tsqr_route_on_the_cluster(client):
     # nearly collinear columns on a large offset: the Gram route loses too many digits (see the baseline tests)
     rng = np.random.default_rng(7)

@@ -75,14 +75,21 @@ def tree_reduce(parts: list, combine) -> Any:
 
 
 # ----------------------------------------------------------------- blocks
-def _blocks(data: Any, columns: Sequence[str] | None):
+def _blocks(data: Any, columns: Sequence[str] | None, weight_column: str | None = None):
     """(names, list of delayed numpy blocks, list of (label, offset) per block)."""
     _require_dask()
+    if weight_column is not None and not _is_dask_frame(data):
+        raise InputError("weights: with a dask array, put the weights in a dask DataFrame column and pass its "
+                         "name (weights='column')")
     if _is_dask_frame(data):
         names_all = [str(c) for c in data.columns]
+        lookup = {str(c): c for c in data.columns}
+        if weight_column is not None and weight_column not in lookup:
+            raise InputError(f"weights: column {weight_column!r} not found in the dask DataFrame; columns are "
+                             f"{names_all}")
         if columns is None:
-            cols = list(data.columns)
-            names = names_all
+            cols = [c for c in data.columns if str(c) != weight_column]
+            names = [str(c) for c in cols]
         else:
             names = [str(c) for c in columns]
             missing = [c for c in names if c not in names_all]
@@ -91,13 +98,17 @@ def _blocks(data: Any, columns: Sequence[str] | None):
                 raise InputError(f"columns: missing {missing} in the dask DataFrame; not selected: {extra}")
             lookup = {str(c): c for c in data.columns}
             cols = [lookup[c] for c in names]
-        for c, dt in zip(cols, data[cols].dtypes):
+        if weight_column is not None and weight_column in names:
+            raise InputError(f"weights: column {weight_column!r} is also one of the fitted columns")
+        take = cols + ([lookup[weight_column]] if weight_column is not None else [])
+        for c, dt in zip(take, data[take].dtypes):
             if dt.kind not in "biuf":
                 raise InputError(f"data: column {str(c)!r} of the dask DataFrame is not numeric (dtype {dt}); "
                                  "select numeric columns with columns=[...]")
-        parts = data[cols].to_delayed()
+        parts = data[take].to_delayed()
         where = [(f"partition {k}", None) for k in range(len(parts))]
-        return names, [(_frame_values, part) for part in parts], where
+        convert = _frame_values if weight_column is None else _frame_values_weighted
+        return names, [(convert, part) for part in parts], where
     arr = data
     if arr.ndim != 2:
         raise InputError(f"data: expected a 2-D dask array, got {arr.ndim}-D")
@@ -120,10 +131,18 @@ def _frame_values(frame) -> tuple[np.ndarray, Any]:
     return values, index
 
 
+def _frame_values_weighted(frame) -> tuple[np.ndarray, Any, np.ndarray]:
+    """The fitted columns and, last, the weights column of one partition."""
+    values, _, index = as_float_array(frame, name="data", ndim=(2,), allow_nan=True)
+    return values[:, :-1], index, values[:, -1].copy()
+
+
 def _clean(block, convert, label: str | None, offset: int | None, names: Sequence[str], missing: str):
     """Rows of one block with the missing-value policy applied, plus counts (runs on a worker)."""
+    w = None
     if convert is not None:
-        values, index = convert(block)
+        values, index, *rest = convert(block)
+        w = rest[0] if rest else None
     else:
         values, index = np.asarray(block, dtype=np.float64), None
 
@@ -134,6 +153,11 @@ def _clean(block, convert, label: str | None, offset: int | None, names: Sequenc
 
     n_read = values.shape[0]
     first = None
+    if w is not None:
+        badw = ~np.isfinite(w) | (w < 0)
+        if badw.any():
+            k = int(np.flatnonzero(badw)[0])
+            raise InputError(f"weights: {where(k)} has weight {w[k]}; weights must be finite and non-negative")
     if values.size and not np.isfinite(values.sum()):
         inf = np.isinf(values)
         if inf.any():
@@ -150,14 +174,15 @@ def _clean(block, convert, label: str | None, offset: int | None, names: Sequenc
                                  "to leave incomplete rows out (they are counted and reported)")
             first = (where(k), names[j])
             values = values[~bad]
-    return values, n_read, n_read - values.shape[0], first
+            w = None if w is None else w[~bad]
+    return values, n_read, n_read - values.shape[0], first, w
 
 
 def _state_of(block, convert, label, offset, names, missing, shift, kind):
     from ..estimate.streaming import Block, accumulate
 
-    values, n_read, n_dropped, first = _clean(block, convert, label, offset, names, missing)
-    st, _ = accumulate(iter([Block(values, None, np.arange(values.shape[0]), None)]), kind, shift=shift)
+    values, n_read, n_dropped, first, w = _clean(block, convert, label, offset, names, missing)
+    st, _ = accumulate(iter([Block(values, w, np.arange(values.shape[0]), None)]), kind, shift=shift)
     return {"state": st, "n_read": n_read, "n_dropped": n_dropped, "first": first, "blocks": 1}
 
 
@@ -177,7 +202,7 @@ def _combine(a: dict, b: dict) -> dict:
 def _pilot_shift(parts, where, names, missing) -> np.ndarray:
     """Mean of the complete rows of the first block that has any (computed now, one block)."""
     for (convert, part), (label, offset) in zip(parts, where):
-        values, _, _, _ = _clean(part.compute(), convert, label, offset, names, missing)
+        values, _, _, _, _ = _clean(part.compute(), convert, label, offset, names, missing)
         if values.shape[0]:
             return values.mean(axis=0)
     raise InputError(f"no complete rows to fit (columns {list(names)}); check the missing values")
@@ -193,7 +218,7 @@ def _reduce(parts, where, names, missing, shift, kind) -> dict:
 
 # ------------------------------------------------------------------- fit
 def fit_baseline_dask(data: Any, *, estimator: str = "sample", columns: Sequence[str] | None = None,
-                      missing: str = "drop", path: str = "auto"):
+                      missing: str = "drop", path: str = "auto", weights: str | None = None):
     """:func:`whiten.fit_baseline` for a dask array or dask DataFrame.
 
     Parameters
@@ -204,6 +229,9 @@ def fit_baseline_dask(data: Any, *, estimator: str = "sample", columns: Sequence
         row at once or several dependent passes; compute the data first).
     columns, missing, path
         As in :func:`whiten.fit_baseline`.
+    weights : str, optional
+        Name of a column of the dask DataFrame holding non-negative frequency
+        weights (the covariance then divides by ``sum(w) - 1``, as in memory).
 
     Returns
     -------
@@ -229,7 +257,7 @@ def fit_baseline_dask(data: Any, *, estimator: str = "sample", columns: Sequence
         raise InputError(f"missing: expected one of ('drop', 'error'), got {missing!r}")
     if path not in ("auto", "gram", "tsqr"):
         raise InputError(f"path: expected one of ('auto', 'gram', 'tsqr'), got {path!r}")
-    names, parts, where = _blocks(data, columns)
+    names, parts, where = _blocks(data, columns, weights)
     shift = _pilot_shift(parts, where, names, missing)
     kind = "qr" if path == "tsqr" else "gram"
     out = _reduce(parts, where, names, missing, shift, kind)
@@ -258,7 +286,9 @@ def fit_baseline_dask(data: Any, *, estimator: str = "sample", columns: Sequence
                                  n_rows_read=out["n_read"], n_dropped=out["n_dropped"],
                                  n_chunks=out["blocks"], passes=passes)
     fst = fit.state
-    params = {"divisor": "n - 1", "weighted": False, "weight_sum": fst.wsum, "engine": "dask"}
+    weighted = weights is not None
+    params = {"divisor": "sum(w) - 1" if weighted else "n - 1", "weighted": weighted, "weight_sum": fst.wsum,
+              "engine": "dask"}
     return Baseline(mean=fst.location, factor=f, n=fst.n, columns=names, estimator="sample", params=params,
                     health=health, weight_sum=fst.wsum)
 
