@@ -22,9 +22,9 @@ import numpy as np
 import whiten
 
 try:
-    from ._timing import best_of
+    from ._timing import best_of, paired
 except ImportError:  # run as a script
-    from _timing import best_of
+    from _timing import best_of, paired
 
 
 def _well(n: int, p: int, seed: int = 0) -> np.ndarray:
@@ -99,8 +99,7 @@ def run(quick: bool = False) -> list[dict]:
     b = whiten.fit_baseline(x)
     ref = np.cov(x, rowvar=False)
     diff = float(np.max(np.abs(b.cov - ref)) / np.max(np.abs(ref)))
-    t_ours = best_of(lambda: whiten.fit_baseline(x), 3)
-    t_peer = best_of(lambda: np.cov(x, rowvar=False), 3)
+    t_ours, t_peer = paired(lambda: whiten.fit_baseline(x), lambda: np.cov(x, rowvar=False), 5)
     rows.append({"case": f"fit N={n:.0e} p={p} well-conditioned", "ours_s": t_ours, "peer": "numpy.cov",
                  "peer_s": t_peer, "note": f"route {b.health.path}; max rel diff vs numpy.cov {diff:.1e}"})
     del x

@@ -8,9 +8,9 @@ from scipy import stats
 import whiten
 
 try:
-    from ._timing import best_of, peak_python_memory
+    from ._timing import best_of, paired, peak_python_memory
 except ImportError:  # run as a script
-    from _timing import best_of, peak_python_memory
+    from _timing import best_of, paired, peak_python_memory
 
 
 def _spd(p: int, seed: int):
@@ -34,7 +34,7 @@ def run(quick: bool = False) -> list[dict]:
         return stats.multivariate_normal(mean, cov).logpdf(x)
 
     err = abs(ours() - peer())
-    t_o, t_p = best_of(ours, 3), best_of(peer, 3)
+    t_o, t_p = paired(ours, peer, 5)
     rows.append({"case": f"one log-likelihood p={p} (factor + evaluate)", "ours_s": t_o,
                  "peer": "scipy.stats.multivariate_normal(...).logpdf", "peer_s": t_p,
                  "note": f"ours: Cholesky + 1 triangular solve; scipy: eigendecomposition; |diff| {err:.2g}"})

@@ -11,9 +11,9 @@ import numpy as np
 import whiten
 
 try:
-    from ._timing import best_of
+    from ._timing import best_of, paired
 except ImportError:  # run as a script
-    from _timing import best_of
+    from _timing import best_of, paired
 
 
 def _problem(n: int, p: int, seed: int = 0):
@@ -50,10 +50,10 @@ def run(quick: bool = False) -> list[dict]:
     dc = float(np.max(np.abs(coef - ref_c) / np.abs(ref_c)))
     ds = float(np.max(np.abs(se - ref_se) / ref_se))
     k = 3 if quick else 2
-    t_ours = best_of(ours, k)
+    t_ours, t_sm = paired(ours, peer_sm, k)
     return [
         {"case": f"linear fit + std errors n={n:.0e} p={p}", "ours_s": t_ours,
-         "peer": "statsmodels OLS(...).fit().bse", "peer_s": best_of(peer_sm, k),
+         "peer": "statsmodels OLS(...).fit().bse", "peer_s": t_sm,
          "note": f"path {path}; max rel. diff coef {dc:.1e}, stderr {ds:.1e}"},
         {"case": f"linear fit + std errors n={n:.0e} p={p}", "ours_s": t_ours,
          "peer": "numpy.linalg.lstsq (coefficients only)", "peer_s": best_of(peer_np, k),

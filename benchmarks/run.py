@@ -6,9 +6,11 @@ Usage::
     python benchmarks/run.py --quick    # small sizes (under a minute)
     python benchmarks/run.py --only gaussian,regression --markdown
 
-Every figure is a wall-clock best-of-3 on the machine it runs on; ratios are
-peer time / whiten time (above 1 means whiten is faster). Not a test: nothing
-here asserts a speed.
+Every figure is the smallest wall-clock time of a few runs on the machine it
+runs on; the headline comparisons (logpdf, baseline fit, OLS, the p=2000
+log-likelihood) alternate whiten and its peer run by run, so both see the same
+machine conditions. Ratios are peer time / whiten time (above 1 means whiten
+is faster). Not a test: nothing here asserts a speed.
 """
 
 from __future__ import annotations

@@ -325,13 +325,23 @@ class Factor:
         for start in range(0, x.shape[0], rows):
             yield start, min(start + rows, x.shape[0])
 
-    def _whiten_block(self, block: np.ndarray, shift: np.ndarray | None) -> np.ndarray:
+    def _whiten_block(self, block: np.ndarray, shift: np.ndarray | None,
+                      buf: np.ndarray | None = None) -> np.ndarray:
         """Rows of ``L^{-1} (x_i - shift)`` for one block, as a (rows, p) C-array.
 
         The block's transpose is Fortran-ordered, so BLAS-3 ``dtrsm`` works on it
-        in place without a copy beyond the centred block itself.
+        in place without a copy beyond the centred block itself. ``buf``, a
+        C-array of at least the block's shape, is reused for that copy (one
+        allocation for a whole pass instead of one per block: on a virtual
+        machine each fresh allocation costs page faults).
         """
-        if shift is not None:
+        if buf is not None:
+            work = buf[: block.shape[0]]
+            if shift is not None:
+                np.subtract(block, shift, out=work)
+            else:
+                work[...] = block
+        elif shift is not None:
             work = block - shift
         else:
             work = np.array(block, dtype=np.float64, order="C", copy=True)
@@ -372,8 +382,9 @@ class Factor:
         arr, one = self._rows(x, "x")
         sh = None if shift is None else np.asarray(shift, dtype=np.float64).reshape(self.dim)
         out = np.empty_like(arr)
+        buf = np.empty((min(arr.shape[0], max(1, int(current().block_rows))), self.dim))
         for a, b in self._row_blocks(arr):
-            out[a:b] = self._whiten_block(arr[a:b], sh)
+            out[a:b] = self._whiten_block(arr[a:b], sh, buf)
         return out[0] if one else out
 
     def unwhiten(self, z: Any) -> np.ndarray:
@@ -400,9 +411,10 @@ class Factor:
     def _quad_checked(self, arr: np.ndarray, shift: np.ndarray | None) -> np.ndarray:
         """quad on rows already validated (finite, shape (N, p), float64)."""
         out = np.empty(arr.shape[0])
+        buf = np.empty((min(arr.shape[0], max(1, int(current().block_rows))), self.dim))
         for a, b in self._row_blocks(arr):
-            z = self._whiten_block(arr[a:b], shift)
-            out[a:b] = np.einsum("ij,ij->i", z, z)
+            z = self._whiten_block(arr[a:b], shift, buf)
+            np.einsum("ij,ij->i", z, z, out=out[a:b])
         return out
 
     def inv_diag(self) -> np.ndarray:
