@@ -31,7 +31,7 @@ import numpy as np
 
 from ..linalg.factor import Factor
 
-__all__ = ["chain_terms", "drop_terms", "whitened_and_drop"]
+__all__ = ["chain_terms", "drop_terms", "whitened_and_drop", "score_terms_into"]
 
 
 def whitened_and_drop(factor: Factor, d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -43,6 +43,32 @@ def whitened_and_drop(factor: Factor, d: np.ndarray) -> tuple[np.ndarray, np.nda
     z = factor.whiten(d)
     w = factor.solve_lower(z.T, trans=True).T
     return z, w * w / factor.inv_diag()[None, :]
+
+
+def score_terms_into(factor: Factor, x: np.ndarray, shift: np.ndarray, d2: np.ndarray, chain: np.ndarray,
+                     drop: np.ndarray) -> None:
+    """d2, chain and drop terms of validated complete rows ``x`` (m, p), written into the given arrays.
+
+    The many-row path of :class:`~whiten.monitor.Scorer`: ``drop`` (a C-ordered
+    (m, p) slice) is the work space. ``z = L^{-1}(x - shift)`` is solved in it,
+    ``d2 = ||z||^2`` and ``chain = z**2`` are taken from it, then
+    ``w = L^{-T} z`` overwrites it and becomes ``w**2 / (S^{-1})_jj``. Two BLAS-3
+    triangular solves and no temporary array.
+    """
+    from scipy.linalg import blas
+
+    lower = factor._lower_f
+    np.subtract(x, shift, out=drop)
+    z = blas.dtrsm(1.0, lower, drop.T, side=0, lower=1, overwrite_b=1)
+    if not np.shares_memory(z, drop):  # pragma: no cover - BLAS wrappers solve C-slices in place
+        drop[...] = z.T
+    np.einsum("ij,ij->i", drop, drop, out=d2)  # the same reduction as the general path, bit for bit
+    np.multiply(drop, drop, out=chain)
+    w = blas.dtrsm(1.0, lower, drop.T, side=0, lower=1, trans_a=1, overwrite_b=1)
+    if not np.shares_memory(w, drop):  # pragma: no cover
+        drop[...] = w.T
+    np.multiply(drop, drop, out=drop)
+    drop /= factor.inv_diag()[None, :]
 
 
 def drop_terms(factor: Factor, d: np.ndarray) -> np.ndarray:

@@ -42,7 +42,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import special, stats
 
 from ..errors import InputError
 
@@ -117,8 +117,9 @@ def t2_pvalue(d2: Any, p: Any, m: int | None = None, *, phase: str = "new") -> n
 
     Notes
     -----
-    The survival functions of scipy.stats (F, Beta, chi-square) are used, so
-    small p-values keep their relative accuracy (no ``1 - cdf`` cancellation).
+    The survival functions behind scipy.stats' F, Beta and chi-square laws
+    (``scipy.special.fdtrc``, ``betaincc``, ``chdtrc``) are used, so small
+    p-values keep their relative accuracy (no ``1 - cdf`` cancellation).
 
     Examples
     --------
@@ -134,15 +135,24 @@ def t2_pvalue(d2: Any, p: Any, m: int | None = None, *, phase: str = "new") -> n
     if not ok.any():
         return out
     check_phase(phase, int(pp[ok].max()), m)
-    x, k = d2[ok], pp[ok]
+    full = bool(ok.all())
+    x = d2 if full else d2[ok]
+    k = pp if full else pp[ok]
+    if full and k.size and (k == k.flat[0]).all():
+        k = int(k.flat[0])  # one law for every row: scalar shape parameters
+    # the survival functions scipy.stats itself evaluates (fdtrc, betaincc, chdtrc), called
+    # directly: the same values without the per-call argument machinery
     if phase == "new":
         scale = k * (m + 1.0) * (m - 1.0) / (m * (m - k))
-        out[ok] = stats.f.sf(x / scale, k, m - k)
+        res = special.fdtrc(k, m - k, x / scale)
     elif phase == "reference":
         scale = (m - 1.0) ** 2 / m
-        out[ok] = stats.beta.sf(x / scale, k / 2.0, (m - k - 1) / 2.0)
+        res = special.betaincc(np.divide(k, 2.0), (m - k - 1) / 2.0, np.minimum(x / scale, 1.0))
     else:
-        out[ok] = stats.chi2.sf(x, k)
+        res = special.chdtrc(k, x)
+    if full:
+        return np.asarray(res, dtype=np.float64).reshape(d2.shape)
+    out[ok] = res
     return out
 
 

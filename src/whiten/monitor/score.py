@@ -34,7 +34,7 @@ from .._settings import current
 from .._validate import as_float_array, as_rows
 from ..errors import ConditioningWarning, InputError
 from ..linalg.factor import Factor
-from .contributions import chain_terms, whitened_and_drop
+from .contributions import chain_terms, score_terms_into, whitened_and_drop
 from .fdr import bh_adjust
 from .limits import check_alpha, check_phase, t2_law, t2_limit, t2_pvalue
 
@@ -171,12 +171,16 @@ class Scorer:
     def score_array(self, x: np.ndarray) -> dict[str, np.ndarray]:
         """Score an (N, p) array in model column order (NaN = missing); arrays keyed by column."""
         n, p = x.shape
-        d2 = np.full(n, np.nan)
-        nobs = np.full(n, p, dtype=np.int64)
-        drop = np.full((n, p), np.nan)
-        chain = np.full((n, p), np.nan)
-        dev = (x - self.mean) / self.sd
         mask = np.isnan(x)
+        gaps = bool(mask.any())
+        # with no missing value every cell is written below; otherwise unscored cells stay NaN
+        alloc = (lambda shape: np.full(shape, np.nan)) if gaps else np.empty
+        d2 = alloc(n)
+        nobs = np.full(n, p, dtype=np.int64)
+        drop = alloc((n, p))
+        chain = alloc((n, p))
+        dev = np.subtract(x, self.mean)
+        dev /= self.sd
         rows_per_block = max(1, int(current().block_rows))
         for a in range(0, n, rows_per_block):
             b = min(n, a + rows_per_block)
@@ -188,7 +192,7 @@ class Scorer:
         alarm[scored] = pval[scored] < self.alpha
         top = np.full(n, "", dtype=object)
         names = np.asarray(self.columns, dtype=object)
-        if scored.all() and not mask.any():  # the common case: no NaN to step around
+        if scored.all() and not gaps:  # the common case: no NaN to step around
             top[:] = names[np.argmax(drop, axis=1)]
         elif scored.any():
             filled = np.where(np.isnan(drop[scored]), -np.inf, drop[scored])
@@ -235,6 +239,10 @@ class Scorer:
             if obs.size == 0:
                 continue
             sub = self._sub(obs)
+            if which.size == x.shape[0] and obs.size == self.p and sub.chain_factor is sub.factor:
+                # every row complete, chain order = column order: solve straight into the outputs
+                score_terms_into(sub.factor, x, self.mean, d2, chain, drop)
+                continue
             if which.size == x.shape[0] and obs.size == self.p:
                 # every row complete: plain slices instead of fancy indexing (no copies)
                 rows, cols = slice(None), slice(None)
