@@ -99,11 +99,17 @@ class ScoreDigest:
         k = d2.shape[0]
         if k == 0:
             return
-        labels = np.arange(self.n_rows, self.n_rows + k) if index is None else np.asarray(index, dtype=object)
+        if index is not None and len(index) != k:
+            raise InputError(f"index: expected {k} row labels, got {len(index)}")
         if index is not None and getattr(index, "name", None) is not None:
             self.index_name = index.name
-        if labels.shape[0] != k:
-            raise InputError(f"index: expected {k} row labels, got {labels.shape[0]}")
+        first = self.n_rows
+
+        def labels(pos: np.ndarray) -> np.ndarray:  # row labels of chunk positions, made only where needed
+            if index is None:
+                return (first + pos).astype(object)
+            return np.asarray(index[pos] if hasattr(index, "take") else np.asarray(index)[pos], dtype=object)
+
         pv = np.asarray(cols["p_value"], dtype=float)
         lim = np.asarray(cols["limit"], dtype=float)
         alarm = np.asarray(cols["alarm"], dtype=bool)
@@ -115,23 +121,29 @@ class ScoreDigest:
             self.n_partial += int(np.sum((nobs > 0) & (nobs < p))) if p else 0
         else:
             self.n_none += int((~scored).sum())
-        self.n_scored += int(scored.sum())
+        n_scored = int(scored.sum())
+        self.n_scored += n_scored
         self.n_alarm += int(alarm.sum())
         if "alarm_fdr" in cols:
             self.n_fdr = (self.n_fdr or 0) + int(np.asarray(cols["alarm_fdr"], dtype=bool).sum())
-        if scored.any():
+        if n_scored:
             self.d2_max = max(self.d2_max, float(np.nanmax(d2)))
         if alarm.any() and "top_contributor" in cols:
             self.leaders.update(str(v) for v in np.asarray(cols["top_contributor"], dtype=object)[alarm])
         self._trace(d2, lim, alarm, labels)
-        # whole rows: candidates from this chunk, merged with those kept so far
-        idx = np.flatnonzero(scored)
-        if idx.size:
-            pick_p = idx[np.lexsort((-d2[idx], pv[idx]))[: self.k]]
-            pick_d = idx[np.argsort(-d2[idx], kind="stable")[: self.k]]
+        # whole rows: this chunk's candidates (every row tied with the k-th, so the order stays exact),
+        # merged with those kept so far
+        if n_scored:
+            idx = np.flatnonzero(scored) if n_scored < k else np.arange(k)
+            # the k first under the final order (p-value, larger d2, file order); a partition finds
+            # the candidates, a sort of those few (ties with the k-th included) picks them exactly
+            cand = _smallest(pv[idx], self.k, idx)
+            pick_p = cand[np.lexsort((cand, -d2[cand], pv[cand]))[: self.k]]
+            cand = _smallest(-d2[idx], self.k, idx)
+            pick_d = cand[np.lexsort((cand, -d2[cand]))[: self.k]]
             both = np.union1d(pick_p, pick_d)
             part = pd.DataFrame({c: np.asarray(v)[both] for c, v in cols.items()},
-                                index=pd.Index(labels[both]))
+                                index=pd.Index(labels(both)))
             part["_order"] = self.n_rows + both
             self._by_p = self._keep(self._by_p, part, by_p=True)
             self._by_d2 = self._keep(self._by_d2, part, by_p=False)
@@ -151,21 +163,22 @@ class ScoreDigest:
 
     def _trace(self, d2, lim, alarm, labels) -> None:
         rows = np.arange(self.n_rows, self.n_rows + d2.shape[0])
-        new = _pool(d2, lim, alarm, rows // self.rows_per_point, labels)
+        new = _pool(d2, lim, alarm, rows // self.rows_per_point)
+        new["label"] = labels(new.pop("start"))
         pt = self._pt
         if pt["bin"].size and new["bin"].size and pt["bin"][-1] == new["bin"][0]:
             # the chunk continues the last bin: pool the two points
-            last = {key: v[-1:] for key, v in pt.items()}
-            head = {key: v[:1] for key, v in new.items()}
-            merged = _pool(np.concatenate([last["d2"], head["d2"]]), np.concatenate([last["limit"], head["limit"]]),
-                           np.concatenate([last["alarm"], head["alarm"]]), np.concatenate([last["bin"], head["bin"]]),
-                           np.concatenate([last["label"], head["label"]]))
+            two = {key: np.concatenate([pt[key][-1:], new[key][:1]]) for key in pt}
+            merged = _pool(two["d2"], two["limit"], two["alarm"], two["bin"])
+            merged["label"] = two["label"][merged.pop("start")]
             pt = {key: np.concatenate([v[:-1], merged[key], new[key][1:]]) for key, v in pt.items()}
         else:
             pt = {key: np.concatenate([v, new[key]]) for key, v in pt.items()}
         while pt["bin"].size > self.cap:
             self.rows_per_point *= 2
-            pt = _pool(pt["d2"], pt["limit"], pt["alarm"], pt["bin"] // 2, pt["label"])
+            label = pt["label"]
+            pt = _pool(pt["d2"], pt["limit"], pt["alarm"], pt["bin"] // 2)
+            pt["label"] = label[pt.pop("start")]
         self._pt = pt
 
     # ------------------------------------------------------------- results
@@ -207,17 +220,25 @@ class ScoreDigest:
         return self._rows(self._by_d2)
 
 
-def _pool(d2, lim, alarm, bins, labels) -> dict:
-    """Points of consecutive equal ``bins`` pooled: largest d2, lowest limit, any alarm, first label."""
+def _smallest(v: np.ndarray, k: int, idx: np.ndarray) -> np.ndarray:
+    """Entries of ``idx`` whose ``v`` is among the k smallest, ties with the k-th included."""
+    if v.size <= k:
+        return idx
+    kth = np.partition(v, k - 1)[k - 1]
+    return idx[v <= kth]
+
+
+def _pool(d2, lim, alarm, bins) -> dict:
+    """Points of consecutive equal ``bins`` pooled: largest d2, lowest limit, any alarm; ``start`` is
+    each point's first position (for its label)."""
     if bins.size == 0:
-        return {"d2": d2, "limit": lim, "alarm": alarm, "bin": bins, "label": labels}
+        return {"d2": d2, "limit": lim, "alarm": alarm, "bin": bins, "start": np.empty(0, dtype=np.intp)}
     starts = np.flatnonzero(np.r_[True, bins[1:] != bins[:-1]])
     if starts.size == bins.size:  # nothing to pool
-        return {"d2": d2.copy(), "limit": lim.copy(), "alarm": alarm.copy(), "bin": bins.copy(),
-                "label": labels.copy()}
+        return {"d2": d2.copy(), "limit": lim.copy(), "alarm": alarm.copy(), "bin": bins.copy(), "start": starts}
     filled = np.where(np.isnan(d2), -np.inf, d2)
     top = np.maximum.reduceat(filled, starts)
     top = np.where(np.isneginf(top), np.nan, top)  # a bin of unscored rows stays unscored
     low = np.fmin.reduceat(lim, starts)
     return {"d2": top, "limit": low, "alarm": np.logical_or.reduceat(alarm, starts), "bin": bins[starts],
-            "label": labels[starts]}
+            "start": starts}
