@@ -65,10 +65,10 @@ def add_parser(sub) -> None:
     p.add_argument("--report", metavar="FILE.html",
                    help="also write a one-file HTML report (whiten.report), built while scoring: "
                         "the scores are not read back")
-    p.add_argument("--chart-points", type=int, default=200_000, metavar="N",
+    p.add_argument("--chart-points", type=int, default=20_000, metavar="N",
                    help="rows drawn one by one on the control chart (--chart, --report); a longer file is "
                         "pooled into bins of consecutive rows, each showing its largest d2, so no alarm "
-                        "is hidden (default: 200000)")
+                        "is hidden and memory stays flat (default: 20000)")
     p.set_defaults(func=run)
 
 

@@ -41,7 +41,9 @@ class ScoreDigest:
         Rows kept whole: the ``worst`` smallest p-values and the ``worst``
         largest distances.
     chart_points : int
-        Rows kept one by one for the control chart before pooling into bins.
+        Rows kept one by one for the control chart before pooling into bins
+        (default 20000: more points than a chart is pixels wide, and a few
+        hundred kilobytes however long the run).
 
     Examples
     --------
@@ -58,7 +60,7 @@ class ScoreDigest:
     """
 
     def __init__(self, sensors: Sequence[str], *, attrs: dict | None = None, worst: int = 5,
-                 chart_points: int = 200_000):
+                 chart_points: int = 20_000):
         if int(worst) < 1 or int(chart_points) < 1:
             raise InputError(f"worst and chart_points must be positive, got {worst} and {chart_points}")
         self.sensors = [str(s) for s in sensors]
@@ -71,7 +73,7 @@ class ScoreDigest:
         self.leaders: Counter = Counter()
         self.rows_per_point = 1
         self._pt = {"d2": np.empty(0), "limit": np.empty(0), "alarm": np.empty(0, dtype=bool),
-                    "bin": np.empty(0, dtype=np.int64), "label": np.empty(0, dtype=object)}
+                    "bin": np.empty(0, dtype=np.int64), "label": np.empty(0, dtype=np.int64)}
         self._by_p = None  # small DataFrames of whole rows
         self._by_d2 = None
         self.index_name: str | None = None
@@ -105,10 +107,12 @@ class ScoreDigest:
             self.index_name = index.name
         first = self.n_rows
 
-        def labels(pos: np.ndarray) -> np.ndarray:  # row labels of chunk positions, made only where needed
+        def labels(pos: np.ndarray) -> np.ndarray:
+            # row labels of chunk positions, made only where needed, in their own dtype
+            # (int64 row numbers, datetime64 stamps; object only for text labels)
             if index is None:
-                return (first + pos).astype(object)
-            return np.asarray(index[pos] if hasattr(index, "take") else np.asarray(index)[pos], dtype=object)
+                return (first + pos).astype(np.int64)
+            return np.asarray(index.take(pos) if hasattr(index, "take") else np.asarray(index)[pos])
 
         pv = np.asarray(cols["p_value"], dtype=float)
         lim = np.asarray(cols["limit"], dtype=float)
