@@ -194,7 +194,8 @@ def run(args) -> int:
     lines.append(f"scores written to {out}")
     trace = digest.trace() if (args.chart or getattr(args, "report", None)) else None
     time_axis = None
-    if trace is not None and args.index_column is not None and digest.rows_per_point == 1:
+    if trace is not None and args.index_column is not None:
+        # each chart point's label (a pooled point: its first row's), as times or numbers when they are
         time_axis = _time_axis([trace.index.to_numpy()])
     if args.chart:
         from ..monitor.charts import distance_chart
