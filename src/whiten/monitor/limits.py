@@ -185,7 +185,10 @@ def t2_limit(alpha: float, p: Any, m: int | None = None, *, phase: str = "new") 
     ok = pp > 0
     if ok.any():
         # one quantile per distinct number of sensors (there are at most p), not per row
-        uniq, inv = np.unique(pp[ok].astype(np.int64), return_inverse=True)
+        if ok.all() and pp.min() == pp.max():  # every row on all sensors: one law, no sort
+            uniq, inv = pp[:1].astype(np.int64), np.zeros(pp.size, dtype=np.intp)
+        else:
+            uniq, inv = np.unique(pp[ok].astype(np.int64), return_inverse=True)
         check_phase(phase, int(uniq.max()), m)
         k = uniq.astype(np.float64)
         if phase == "new":
