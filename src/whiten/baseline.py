@@ -911,7 +911,7 @@ def _cached(clean: _Cleaner, src: _Source) -> tuple[Callable[[], Iterator[Block]
 
 
 def _fit_shrinkage(src: _Source, clean: _Cleaner, path: str, method: str) -> Baseline:
-    from .estimate.sample import check_scatter, fit_scatter
+    from .estimate.sample import check_scatter
     from .estimate.shrinkage import SHRINKAGE_METHODS, shrinkage_intensity, shrunk_factor
     from .estimate.streaming import accumulate
 

@@ -24,7 +24,6 @@ from pathlib import Path
 from typing import Any, Iterable, Sequence
 
 from .._version import __version__
-from ..errors import InputError
 
 __all__ = ["FileRecord", "Provenance", "file_record", "sha256_file", "count_rows", "cli_provenance"]
 
