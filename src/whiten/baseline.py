@@ -325,6 +325,14 @@ class _Source:
         return vals, None, None
 
 
+def check_frequency_weights(w: np.ndarray, where: Callable[[int], str]) -> None:
+    """Frequency weights must be finite and non-negative; the first bad one is named by ``where(k)``."""
+    bad = ~np.isfinite(w) | (w < 0)
+    if bad.any():
+        k = int(np.flatnonzero(bad)[0])
+        raise InputError(f"weights: {where(k)} has weight {w[k]}; weights must be finite and non-negative")
+
+
 class _Cleaner:
     """Applies the missing-value policy and the weights to raw blocks; counts what it drops."""
 
@@ -354,11 +362,7 @@ class _Cleaner:
                     raise InputError(f"weights: {self.weights.shape[0]} entries, but the data has more rows")
                 w = self.weights[pos]
             if w is not None:
-                badw = ~np.isfinite(w) | (w < 0)
-                if badw.any():
-                    k = int(np.flatnonzero(badw)[0])
-                    raise InputError(f"weights: row {int(pos[k])} has weight {w[k]}; weights must be finite "
-                                     "and non-negative")
+                check_frequency_weights(w, lambda k, pos=pos: f"row {int(pos[k])}")
             # cheap screen: the total is finite unless some value is NaN or infinite (or the sum
             # overflows, a harmless false alarm); only then look cell by cell
             bad = None

@@ -125,8 +125,6 @@ def _factor_scaled(m: np.ndarray):
     s = _pow2_scale(np.diag(m).copy())
     ms = np.multiply(m, s[:, None], order="F")
     anorm, anorm_s = _scale_columns_and_norms(ms, s)
-    if not (np.isfinite(anorm) and np.isfinite(anorm_s)):
-        anorm = anorm_s = math.inf  # overflow in the sums: no condition estimate
     c, info = lapack.dpotrf(ms, lower=1, clean=1, overwrite_a=1)
     if info != 0:
         return None, s, int(info), 0.0, anorm
@@ -325,28 +323,31 @@ class Factor:
         for start in range(0, x.shape[0], rows):
             yield start, min(start + rows, x.shape[0])
 
-    def _whiten_block(self, block: np.ndarray, shift: np.ndarray | None,
-                      buf: np.ndarray | None = None) -> np.ndarray:
-        """Rows of ``L^{-1} (x_i - shift)`` for one block, as a (rows, p) C-array.
+    def _work_buffer(self, n_rows: int) -> np.ndarray:
+        """One C-ordered block-sized work array for a whole blocked pass (one allocation, not one per
+        block: on a virtual machine every fresh multi-megabyte array costs page faults)."""
+        return np.empty((min(n_rows, max(1, int(current().block_rows))), self.dim))
 
-        The block's transpose is Fortran-ordered, so BLAS-3 ``dtrsm`` works on it
-        in place without a copy beyond the centred block itself. ``buf``, a
-        C-array of at least the block's shape, is reused for that copy (one
-        allocation for a whole pass instead of one per block: on a virtual
-        machine each fresh allocation costs page faults).
+    def _solve_rows(self, rows: np.ndarray, *, trans: bool = False) -> np.ndarray:
+        """``rows[i] <- L^{-1} rows[i]`` (``L^{-T}`` with ``trans``) in place, for a C-ordered (m, p) array.
+
+        Its transpose is Fortran-ordered, so BLAS-3 ``dtrsm`` solves it where it lies.
         """
-        if buf is not None:
-            work = buf[: block.shape[0]]
-            if shift is not None:
-                np.subtract(block, shift, out=work)
-            else:
-                work[...] = block
-        elif shift is not None:
-            work = block - shift
+        z = blas.dtrsm(1.0, self._lower_f, rows.T, side=0, lower=1, trans_a=1 if trans else 0, diag=0,
+                       overwrite_b=1)
+        if not np.shares_memory(z, rows):  # pragma: no cover - the wrapper solves C-slices in place
+            rows[...] = z.T
+        return rows
+
+    def _whiten_block(self, block: np.ndarray, shift: np.ndarray | None, buf: np.ndarray) -> np.ndarray:
+        """Rows of ``L^{-1} (x_i - shift)`` for one block, solved in ``buf`` (C-ordered, at least the
+        block's shape); returns the filled part of ``buf``."""
+        work = buf[: block.shape[0]]
+        if shift is not None:
+            np.subtract(block, shift, out=work)
         else:
-            work = np.array(block, dtype=np.float64, order="C", copy=True)
-        z = blas.dtrsm(1.0, self._lower_f, work.T, side=0, lower=1, trans_a=0, diag=0, overwrite_b=1)
-        return z.T
+            work[...] = block
+        return self._solve_rows(work)
 
     def _rows(self, x: Any, name: str) -> tuple[np.ndarray, bool]:
         arr = np.asarray(x, dtype=np.float64)
@@ -382,7 +383,7 @@ class Factor:
         arr, one = self._rows(x, "x")
         sh = None if shift is None else np.asarray(shift, dtype=np.float64).reshape(self.dim)
         out = np.empty_like(arr)
-        buf = np.empty((min(arr.shape[0], max(1, int(current().block_rows))), self.dim))
+        buf = self._work_buffer(arr.shape[0])
         for a, b in self._row_blocks(arr):
             out[a:b] = self._whiten_block(arr[a:b], sh, buf)
         return out[0] if one else out
@@ -411,7 +412,7 @@ class Factor:
     def _quad_checked(self, arr: np.ndarray, shift: np.ndarray | None) -> np.ndarray:
         """quad on rows already validated (finite, shape (N, p), float64)."""
         out = np.empty(arr.shape[0])
-        buf = np.empty((min(arr.shape[0], max(1, int(current().block_rows))), self.dim))
+        buf = self._work_buffer(arr.shape[0])
         for a, b in self._row_blocks(arr):
             z = self._whiten_block(arr[a:b], shift, buf)
             np.einsum("ij,ij->i", z, z, out=out[a:b])

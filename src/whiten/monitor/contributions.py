@@ -55,20 +55,12 @@ def score_terms_into(factor: Factor, x: np.ndarray, shift: np.ndarray, d2: np.nd
     ``w = L^{-T} z`` overwrites it and becomes ``w**2 / (S^{-1})_jj``. Two BLAS-3
     triangular solves and no temporary array.
     """
-    from scipy.linalg import blas
-
-    lower = factor._lower_f
-    np.subtract(x, shift, out=drop)
-    z = blas.dtrsm(1.0, lower, drop.T, side=0, lower=1, overwrite_b=1)
-    if not np.shares_memory(z, drop):  # pragma: no cover - BLAS wrappers solve C-slices in place
-        drop[...] = z.T
-    np.einsum("ij,ij->i", drop, drop, out=d2)  # the same reduction as the general path, bit for bit
-    np.multiply(drop, drop, out=chain)
-    w = blas.dtrsm(1.0, lower, drop.T, side=0, lower=1, trans_a=1, overwrite_b=1)
-    if not np.shares_memory(w, drop):  # pragma: no cover
-        drop[...] = w.T
-    np.multiply(drop, drop, out=drop)
-    drop /= factor.inv_diag()[None, :]
+    z = factor._whiten_block(x, shift, drop)  # solved in place in drop
+    np.einsum("ij,ij->i", z, z, out=d2)  # the same reduction as the general path, bit for bit
+    np.multiply(z, z, out=chain)
+    w = factor._solve_rows(z, trans=True)
+    np.multiply(w, w, out=w)
+    w /= factor.inv_diag()[None, :]
 
 
 def drop_terms(factor: Factor, d: np.ndarray) -> np.ndarray:

@@ -25,6 +25,7 @@ differs.
 from __future__ import annotations
 
 import math
+import operator
 import sys
 import warnings
 from typing import Any, Sequence
@@ -96,7 +97,6 @@ def _blocks(data: Any, columns: Sequence[str] | None, weight_column: str | None 
             if missing:
                 extra = [c for c in names_all if c not in names]
                 raise InputError(f"columns: missing {missing} in the dask DataFrame; not selected: {extra}")
-            lookup = {str(c): c for c in data.columns}
             cols = [lookup[c] for c in names]
         if weight_column is not None and weight_column in names:
             raise InputError(f"weights: column {weight_column!r} is also one of the fitted columns")
@@ -154,10 +154,9 @@ def _clean(block, convert, label: str | None, offset: int | None, names: Sequenc
     n_read = values.shape[0]
     first = None
     if w is not None:
-        badw = ~np.isfinite(w) | (w < 0)
-        if badw.any():
-            k = int(np.flatnonzero(badw)[0])
-            raise InputError(f"weights: {where(k)} has weight {w[k]}; weights must be finite and non-negative")
+        from ..baseline import check_frequency_weights
+
+        check_frequency_weights(w, where)
     if values.size and not np.isfinite(values.sum()):
         inf = np.isinf(values)
         if inf.any():
@@ -448,10 +447,6 @@ def _resid_block(xb, yb, intercept, kept, sw, x):
     return yb - (a[:, kept] * sw[None, :]) @ x
 
 
-def _add(a, b):
-    return a + b
-
-
 def _sum_log_sqrt_w(wb, offset: int) -> float:
     return float(np.sum(np.log(_sqrt_weights(wb, offset))))
 
@@ -562,7 +557,7 @@ def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, weights: Any = No
         logs = [delayed(_sum_log_sqrt_w)(w, o) for w, o in zip(wb, offsets)]
         import dask
 
-        raug, slw = dask.compute(tree_reduce(rs, _r_stack), tree_reduce(logs, _add))  # one pass, both sums
+        raug, slw = dask.compute(tree_reduce(rs, _r_stack), tree_reduce(logs, operator.add))  # one pass, both sums
         raug = np.asarray(raug)
         design.sqrt_w = wa  # lazy: marks the fit as weighted; never pulled in
         design.sum_log_sqrt_w = float(slw)
