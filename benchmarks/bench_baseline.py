@@ -82,11 +82,11 @@ def _accuracy(n: int = 2000, p: int = 4) -> str:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", whiten.NumericalWarning)
         auto = whiten.fit_baseline(x)
-        gram = whiten.fit_baseline(x, path="gram")
+        gram = whiten.fit_baseline(x, method="gram")
     e_auto = _metric_error(l_ref, lower=auto.factor.lower)
     e_gram = _metric_error(l_ref, lower=gram.factor.lower)
     e_np = _metric_error(l_ref, sigma=np.cov(x, rowvar=False))
-    return (f"metric error vs 40-digit mpmath (N={n}, p={p}, offset 1e8): whiten {auto.health.path} "
+    return (f"metric error vs 40-digit mpmath (N={n}, p={p}, offset 1e8): whiten {auto.health.method} "
             f"{e_auto:.1e}, whiten gram {e_gram:.1e}, numpy.cov {e_np:.1e}")
 
 
@@ -101,7 +101,7 @@ def run(quick: bool = False) -> list[dict]:
     diff = float(np.max(np.abs(b.cov - ref)) / np.max(np.abs(ref)))
     t_ours, t_peer = paired(lambda: whiten.fit_baseline(x), lambda: np.cov(x, rowvar=False), 5)
     rows.append({"case": f"fit N={n:.0e} p={p} well-conditioned", "ours_s": t_ours, "peer": "numpy.cov",
-                 "peer_s": t_peer, "note": f"route {b.health.path}; max rel diff vs numpy.cov {diff:.1e}"})
+                 "peer_s": t_peer, "note": f"route {b.health.method}; max rel diff vs numpy.cov {diff:.1e}"})
     del x
 
     x = _ill(n, p)
@@ -112,7 +112,7 @@ def run(quick: bool = False) -> list[dict]:
     t_peer = best_of(lambda: np.cov(x, rowvar=False), 2)
     rows.append({"case": f"fit N={n:.0e} p={p} ill-conditioned (offset 1e8)", "ours_s": t_ours,
                  "peer": "numpy.cov", "peer_s": t_peer,
-                 "note": f"route {b.health.path} (Gram would lose {b.health.gram_digits_lost:.1f} digits); "
+                 "note": f"route {b.health.method} (Gram would lose {b.health.gram_digits_lost:.1f} digits); "
                          + _accuracy()})
     return rows
 

@@ -4,6 +4,7 @@ The public API is what this module re-exports; everything in underscored
 modules is private.
 """
 
+from . import _engines
 from ._settings import get_options, options, set_options
 from ._version import __version__
 from .errors import (
@@ -54,3 +55,18 @@ from . import report
 from .report import Provenance, Report, calibration_report, likelihood_report, monitoring_report, regression_report
 __all__ += ["report", "Report", "Provenance", "monitoring_report", "regression_report", "likelihood_report",
             "calibration_report"]
+
+
+# --- engines: the dask engine claims dask collections; dask itself is imported only when first needed ---
+def _load_dask():
+    from .parallel.dask.common import require_dask
+
+    require_dask()
+    from .parallel import dask
+
+    return dask
+
+
+from .parallel.dask.common import is_dask_collection as _is_dask_collection  # noqa: E402
+
+_engines.register("dask", claims=_is_dask_collection, load=_load_dask)

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
@@ -101,23 +101,29 @@ def from_json_number(v: Any) -> float:
     return float(v)
 
 
-def json_ready(v: Any) -> Any:
+def json_ready(v: Any, other: Callable[[Any], Any] | None = None) -> Any:
     """``v`` with every number in the JSON rule: dicts, lists, tuples, arrays and records recursively.
 
     Records (objects with ``to_dict``) are turned into their dicts; dataclasses
-    without one into their public fields.
+    without one into their public fields. A leaf that is not a number, string
+    or None is passed to ``other`` when given (e.g. ``str`` for time stamps),
+    else left as it is.
 
     >>> json_ready({"a": np.array([1.0, np.nan, np.inf]), "b": (2, None)})
     {'a': [1.0, None, 'inf'], 'b': [2, None]}
     """
     if isinstance(v, dict):
-        return {str(k): json_ready(x) for k, x in v.items()}
+        return {str(k): json_ready(x, other) for k, x in v.items()}
     if isinstance(v, (list, tuple)):
-        return [json_ready(x) for x in v]
+        return [json_ready(x, other) for x in v]
     if isinstance(v, np.ndarray):
-        return [json_ready(x) for x in v.tolist()]
+        return [json_ready(x, other) for x in v.tolist()]
     if hasattr(v, "to_dict") and not isinstance(v, type):
-        return json_ready(v.to_dict())
+        return json_ready(v.to_dict(), other)
     if dataclasses.is_dataclass(v) and not isinstance(v, type):
-        return {f.name: json_ready(getattr(v, f.name)) for f in dataclasses.fields(v) if not f.name.startswith("_")}
-    return json_number(v)
+        return {f.name: json_ready(getattr(v, f.name), other)
+                for f in dataclasses.fields(v) if not f.name.startswith("_")}
+    out = json_number(v)
+    if other is not None and not (out is None or isinstance(out, (bool, int, float, str))):
+        return other(out)
+    return out

@@ -51,7 +51,7 @@ class Options:
         factor is recomputed from a tall-skinny QR of the centred data (one
         more pass). The Gram route's error grows with cond(X)^2, the QR
         route's with cond(X); the default of 6 keeps about 10 digits on the
-        Gram route. ``inf`` never re-reads; ``fit_baseline(path="tsqr")`` always
+        Gram route. ``inf`` never re-reads; ``fit_baseline(method="tsqr")`` always
         takes the QR route.
     """
 

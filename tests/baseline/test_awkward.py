@@ -29,7 +29,7 @@ def test_constant_column_is_named():
         whiten.fit_baseline(df)
     big = _frame().assign(level=1e8 + 0.5)  # a level far from zero still centres to exact zeros
     with pytest.raises(whiten.InputError, match="'level'"):
-        whiten.fit_baseline(big, path="tsqr")
+        whiten.fit_baseline(big, method="tsqr")
 
 
 def test_dependent_columns_are_named():
@@ -79,8 +79,8 @@ def test_options_are_checked():
         whiten.fit_baseline(x, estimator="mle")
     with pytest.raises(whiten.InputError, match="missing: expected one of"):
         whiten.fit_baseline(x, missing="ignore")
-    with pytest.raises(whiten.InputError, match="path: expected one of"):
-        whiten.fit_baseline(x, path="svd")
+    with pytest.raises(whiten.InputError, match="method: expected one of"):
+        whiten.fit_baseline(x, method="svd")
     with pytest.raises(whiten.InputError, match="2 name"):
         whiten.fit_baseline(x, columns=["a", "b"])
     with pytest.raises(whiten.InputError, match="weights: 79 entries"):
@@ -101,4 +101,4 @@ def test_ill_conditioned_warns_with_numbers():
     x = np.column_stack([t, t + 1e-6 * rng.normal(size=300), rng.normal(size=300)])
     with pytest.warns(whiten.ConditioningWarning, match=r"about 1\d\.\d of ~16 significant digits"):
         b = whiten.fit_baseline(x)
-    assert b.health.path == "tsqr" and b.health.digits_lost > whiten.get_options().digits_warn
+    assert b.health.method == "tsqr" and b.health.digits_lost > whiten.get_options().digits_warn

@@ -30,7 +30,7 @@ def test_round_trip_scores_identically(tmp_path, fitted):
     assert back.columns == b.columns and back.n == b.n and back.estimator == "sample"
     assert back.health == b.health
     doc = json.loads(f.read_text())
-    assert doc["format"] == "whiten.baseline/1"
+    assert doc["format"] == "whiten.baseline/2"
     # the checksum is SHA-256 (hashlib) of the canonical payload
     assert doc["sha256"] == hashlib.sha256(canonical(doc["payload"]).encode()).hexdigest()
     assert doc["payload"]["library_version"] == whiten.__version__
@@ -75,13 +75,13 @@ def test_wrong_format_or_version_is_rejected(tmp_path, fitted):
     b, _ = fitted
     f = b.save(tmp_path / "m.json")
     doc = json.loads(f.read_text())
-    doc["format"] = "whiten.baseline/2"
+    doc["format"] = "whiten.baseline/3"
     f.write_text(json.dumps(doc))
-    with pytest.raises(whiten.ModelFileError, match="version '2'"):
+    with pytest.raises(whiten.ModelFileError, match="version '3'"):
         whiten.load_baseline(f)
     doc["format"] = "something.else/1"
     f.write_text(json.dumps(doc))
-    with pytest.raises(whiten.ModelFileError, match="expected 'whiten.baseline/1'"):
+    with pytest.raises(whiten.ModelFileError, match="expected 'whiten.baseline/2'"):
         whiten.load_baseline(f)
     f.write_text(json.dumps([1, 2, 3]))
     with pytest.raises(whiten.ModelFileError, match="not a whiten model file"):
@@ -141,3 +141,19 @@ def test_infinite_health_figure_survives(tmp_path):
                                   params=b.params, health=dataclasses.replace(b.health, gram_digits_lost=np.inf))
     back = whiten.load_baseline(b2.save(tmp_path / "m.json"))
     assert back.health.gram_digits_lost == np.inf
+
+
+def test_version_1_files_still_load(tmp_path, fitted):
+    # format 1 named the numerical route "path" in the health record; it is read as "method"
+    from whiten.io.modelfile import checksum
+
+    b, _ = fitted
+    f = b.save(tmp_path / "m.json")
+    doc = json.loads(f.read_text())
+    doc["format"] = "whiten.baseline/1"
+    doc["payload"]["health"]["path"] = doc["payload"]["health"].pop("method")
+    doc["sha256"] = checksum(doc["payload"])
+    f.write_text(json.dumps(doc))
+    old = whiten.load_baseline(f)
+    assert old.health.method == b.health.method
+    assert np.array_equal(old.mean, b.mean) and np.array_equal(old.factor.lower, b.factor.lower)

@@ -26,16 +26,16 @@ def _rel(a, b) -> float:
     return float(np.max(np.abs(np.asarray(a) - np.asarray(b))) / np.max(np.abs(b)))
 
 
-@pytest.mark.parametrize("path", ["auto", "gram", "tsqr"])
-def test_mean_and_cov_match_numpy(path):
+@pytest.mark.parametrize("method", ["auto", "gram", "tsqr"])
+def test_mean_and_cov_match_numpy(method):
     x = _sensor_rows(500, 5, seed=1)
-    b = whiten.fit_baseline(x, path=path, columns=list("abcde"))
+    b = whiten.fit_baseline(x, method=method, columns=list("abcde"))
     # reference: numpy.mean / numpy.cov (unbiased, n - 1), well conditioned -> ~1e-14 relative
     kappa = np.linalg.cond(np.cov(x, rowvar=False))
     tol = 50 * 5 * kappa * EPS
     assert _rel(b.mean, x.mean(axis=0)) < 1e-14
     assert _rel(b.cov, np.cov(x, rowvar=False)) < tol
-    assert b.health.path == ("gram" if path == "auto" else path)
+    assert b.health.method == ("gram" if method == "auto" else method)
     assert b.n == 500 and b.columns == list("abcde") and b.estimator == "sample"
     assert b.params["divisor"] == "n - 1"
 
@@ -94,10 +94,10 @@ def test_iterator_of_frames_takes_the_qr_route():
     frames = (pd.DataFrame(x[a:a + 100], columns=["u", "v", "w"]) for a in range(0, 900, 100))
     b = whiten.fit_baseline(frames)
     # a one-shot iterator cannot be re-read, so "auto" goes straight to the accurate route
-    assert b.health.path == "tsqr" and b.health.passes == 1
+    assert b.health.method == "tsqr" and b.health.passes == 1
     assert _rel(b.cov, np.cov(x, rowvar=False)) < 1e-13  # numpy.cov
     lst = [pd.DataFrame(x[a:a + 100], columns=["u", "v", "w"]) for a in range(0, 900, 100)]
-    assert whiten.fit_baseline(lst).health.path == "gram"
+    assert whiten.fit_baseline(lst).health.method == "gram"
 
 
 def _ill_conditioned(seed: int = 11, n: int = 400) -> np.ndarray:
@@ -152,8 +152,8 @@ def test_ill_conditioned_takes_tsqr_and_beats_numpy_cov():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", whiten.ConditioningWarning)
         b = whiten.fit_baseline(x)
-        g = whiten.fit_baseline(x, path="gram")
-    assert b.health.path == "tsqr" and b.health.passes == 2
+        g = whiten.fit_baseline(x, method="gram")
+    assert b.health.method == "tsqr" and b.health.passes == 2
     assert b.health.gram_digits_lost > whiten.get_options().gram_digits_max
     ours = _metric_error(l_ref, lower=b.factor.lower)
     gram = _metric_error(l_ref, lower=g.factor.lower)
@@ -178,7 +178,7 @@ def test_update_and_downdate_equal_refitting():
     kappa = 1.0 / ref.health.rcond
     assert _rel(up.cov, ref.cov) < 100 * kappa * EPS
     assert _rel(up.mean, ref.mean) < 1e-13
-    assert up.n == 260 and up.health.path == "updated" and up.params["rows_added"] == 60
+    assert up.n == 260 and up.health.method == "updated" and up.params["rows_added"] == 60
     slid = up.downdate(x[:60])
     ref2 = whiten.fit_baseline(x[60:], columns=list("abcd"))
     assert _rel(slid.cov, ref2.cov) < 1000 * kappa * EPS
@@ -205,7 +205,7 @@ def test_downdate_refuses_rows_that_were_not_there_and_small_windows():
 def test_input_not_modified_and_float32_accepted():
     x = _sensor_rows(100, 3, seed=14)
     keep = x.copy()
-    whiten.fit_baseline(x, chunksize=7, path="tsqr")
+    whiten.fit_baseline(x, chunksize=7, method="tsqr")
     assert np.array_equal(x, keep)
     b32 = whiten.fit_baseline(x.astype(np.float32))
     assert _rel(b32.cov, np.cov(x.astype(np.float32).astype(np.float64), rowvar=False)) < 1e-13

@@ -59,7 +59,7 @@ def test_baseline_from_dask_array_and_frame_equals_in_memory(client, plant):
         assert b.columns == ref.columns and b.n == ref.n
         assert _rel(b.mean, ref.mean) < 1e-12
         assert _rel(b.cov, ref.cov) < 1e-10
-        assert b.health.path == ref.health.path == "gram" and b.params["engine"] == "dask"
+        assert b.health.method == ref.health.method == "gram" and b.params["engine"] == "dask"
         assert b.health.n_chunks > 1
 
 
@@ -94,7 +94,7 @@ def test_ill_conditioned_baseline_takes_the_tsqr_route_on_the_cluster(client):
         ref = whiten.fit_baseline(x)
     with pytest.warns(whiten.ConditioningWarning, match="ill-conditioned"):
         b = whiten.fit_baseline(da.from_array(x, chunks=(1000, 3)))
-    assert ref.health.path == b.health.path == "tsqr" and b.health.passes == 2
+    assert ref.health.method == b.health.method == "tsqr" and b.health.passes == 2
     assert _rel(b.cov, ref.cov) < 1e-10
     probe = x[:50] + 1e-5
     assert _rel(b.gaussian.mahalanobis(probe), ref.gaussian.mahalanobis(probe)) < 1e-9

@@ -67,14 +67,3 @@ def test_sphinx_build_has_no_warnings(tmp_path):
     cli = (out / "cli.html").read_text(encoding="utf-8")
     # the command help is read from the parser, so every command and the --report option appear
     assert "whiten score" in cli and "whiten regress" in cli and cli.count("--report") >= 3
-
-
-@pytest.mark.parametrize("module", ["whiten.report.document", "whiten.report.provenance", "whiten.report.monitoring",
-                                    "whiten.report.regression", "whiten.report.likelihood"])
-def test_report_docstring_examples(module, tmp_path, monkeypatch):
-    import doctest
-    import importlib
-
-    monkeypatch.chdir(tmp_path)
-    res = doctest.testmod(importlib.import_module(module), optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert res.attempted > 0 and res.failed == 0

@@ -15,7 +15,7 @@ examples:
   whiten baseline few_rows.csv -o loop.json --estimator shrinkage --force
   whiten baseline counts.csv -o loop.json --weight-column n_seen
 
-The model file is JSON (format whiten.baseline/1) with a SHA-256 checksum;
+The model file is JSON (format whiten.baseline/2) with a SHA-256 checksum;
 `whiten inspect MODEL.json` describes it and `whiten score` uses it. Large
 files are read in chunks with bounded memory. Rows with a missing reading are
 left out and counted (--missing error stops at the first instead).
@@ -69,9 +69,9 @@ def health_lines(b) -> list[str]:
     prm = b.params
     if b.estimator == "sample":
         route = {"gram": "shifted Gram matrix + Cholesky", "tsqr": "tall-skinny QR of the centred data",
-                 "updated": "rank-one updates"}.get(h.path, h.path)
+                 "updated": "rank-one updates"}.get(h.method, h.method)
         why = ""
-        if h.gram_digits_lost is not None and h.path == "tsqr":
+        if h.gram_digits_lost is not None and h.method == "tsqr":
             why = f" (the Gram route would lose {h.gram_digits_lost:.1f} digits)"
         out.append(f"estimator: sample covariance, divisor {prm.get('divisor', 'n - 1')}; route: {route}{why}")
     elif b.estimator == "shrinkage":

@@ -25,6 +25,7 @@ import numpy as np
 
 from .._settings import current
 from .._warn import warn
+from .._numerics import EPS
 from ..errors import ConditioningWarning, InputError, NotPositiveDefiniteError
 from ..linalg.factor import Factor, _health_of, cholesky
 from ..linalg.pivoted import pivoted_cholesky
@@ -32,8 +33,7 @@ from .streaming import Block, ScatterState, accumulate
 
 __all__ = ["ScatterFit", "fit_scatter", "check_scatter", "covariance_factor", "factor_from_r"]
 
-_EPS = float(np.finfo(np.float64).eps)
-_PATHS = ("auto", "gram", "tsqr")
+METHODS = ("auto", "gram", "tsqr")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -44,7 +44,7 @@ class ScatterFit:
     ----------
     state : ScatterState
         Final accumulated state (``kind="gram"`` or ``"qr"``).
-    path : str
+    method : str
         ``"gram"`` or ``"tsqr"``: which route produced the factor.
     gram_digits_lost : float or None
         Digits lost estimated on the Gram route (None when it did not run).
@@ -56,7 +56,7 @@ class ScatterFit:
     """
 
     state: ScatterState
-    path: str
+    method: str
     gram_digits_lost: float | None
     gram_factor: Factor | None
     n_blocks: int
@@ -95,7 +95,7 @@ def check_scatter(state: ScatterState, names: Sequence[str], *, dependent: bool 
     d = np.diag(s)
     loc = state.location
     # a constant column centres to exact zeros; allow rounding of its level
-    tiny = state.wsum * (8 * _EPS * np.maximum(np.abs(loc), np.finfo(np.float64).tiny)) ** 2
+    tiny = state.wsum * (8 * EPS * np.maximum(np.abs(loc), np.finfo(np.float64).tiny)) ** 2
     const = [j for j in range(state.dim) if d[j] <= tiny[j]]
     if const:
         desc = ", ".join(f"{names[j]!r} (every row holds {loc[j]:.10g})" for j in const)
@@ -151,7 +151,7 @@ def _gram_factor(state: ScatterState, names: Sequence[str]) -> tuple[Factor | No
     return f, f.digits_lost
 
 
-def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, path: str = "auto",
+def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, method: str = "auto",
                 reiterable: bool = True) -> ScatterFit:
     """Accumulate the scatter of the blocks along the automatic path.
 
@@ -160,7 +160,7 @@ def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, 
     blocks : callable returning an iterator of Block
         Called once, or twice when the TSQR route must re-read the data.
     names : sequence of str
-    path : {"auto", "gram", "tsqr"}
+    method : {"auto", "gram", "tsqr"}
         ``"auto"``: Gram first, TSQR when the Gram factor loses more than
         ``gram_digits_max`` digits. A source that can be read only once
         (``reiterable=False``) goes straight to TSQR under ``"auto"``.
@@ -169,9 +169,9 @@ def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, 
     -------
     ScatterFit
     """
-    if path not in _PATHS:
-        raise InputError(f"path: expected one of {_PATHS}, got {path!r}")
-    if path == "tsqr" or (path == "auto" and not reiterable):
+    if method not in METHODS:
+        raise InputError(f"method: expected one of {METHODS}, got {method!r}")
+    if method == "tsqr" or (method == "auto" and not reiterable):
         st, nb = accumulate(blocks(), "qr")
         if st is None or st.n == 0:
             raise _no_rows(names)
@@ -182,7 +182,7 @@ def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, 
         raise _no_rows(names)
     check_rows(st, names)
     f, digits = _gram_factor(st, names)
-    if path == "gram" or digits <= current().gram_digits_max:
+    if method == "gram" or digits <= current().gram_digits_max:
         return ScatterFit(st, "gram", digits, f, nb, 1)
     st2, _ = accumulate(blocks(), "qr", shift=st.shift)
     if st2 is None or st2.n != st.n:
@@ -197,7 +197,7 @@ def covariance_factor(fit: ScatterFit, names: Sequence[str]) -> Factor:
     st = fit.state
     check_scatter(st, names)
     div = _cov_divisor(st)
-    if fit.path == "tsqr":
+    if fit.method == "tsqr":
         f = factor_from_r(st.mat, 1.0 / math.sqrt(div), names)
         _conditioning_warning(f, "the covariance")
         return f

@@ -22,16 +22,16 @@ matrix), so no Gram matrix of the data is factored and ``n < p`` is fine.
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from typing import Iterable, Sequence
 
 import numpy as np
 
 from ..errors import InputError
 from ..linalg.factor import Factor
 from .sample import factor_from_r
-from .streaming import _upper_r
+from .streaming import Block, _upper_r
 
-__all__ = ["SHRINKAGE_METHODS", "shrinkage_intensity", "shrunk_factor"]
+__all__ = ["SHRINKAGE_METHODS", "centred_fourth_moment", "shrinkage_intensity", "shrunk_factor"]
 
 SHRINKAGE_METHODS = ("ledoit-wolf", "oas")
 
@@ -93,3 +93,19 @@ def shrunk_factor(r: np.ndarray, n: int, intensity: float, m: float, names: Sequ
     stacked = np.vstack([math.sqrt((1.0 - intensity) / n) * r, math.sqrt(intensity * m) * np.eye(p)])
     rr = _upper_r(np.asfortranarray(stacked))
     return factor_from_r(rr, 1.0, names, method="shrinkage")
+
+
+def centred_fourth_moment(blocks: Iterable[Block], shift: np.ndarray, mean: np.ndarray) -> float:
+    """``sum_i ||x_i - shift - mean||^4`` over the rows of the blocks (Ledoit-Wolf's second pass).
+
+    One pass, one block in memory at a time; ``shift + mean`` is the sample mean
+    (the accumulator's pilot shift and the mean of the shifted rows, subtracted
+    in that order as the accumulator does).
+    """
+    total = 0.0
+    for blk in blocks:
+        if blk.values.shape[0]:
+            z = blk.values - shift - mean
+            q = np.einsum("ij,ij->i", z, z)
+            total += float(q @ q)
+    return total

@@ -3,7 +3,7 @@
 Layout (a format of whiten's own)::
 
     {
-      "format": "whiten.baseline/1",
+      "format": "whiten.baseline/2",
       "payload": { ... },
       "sha256": "<hex digest of the canonical payload>"
     }
@@ -20,11 +20,11 @@ from __future__ import annotations
 import datetime as _dt
 import hashlib
 import json
-import math
 import os
 from pathlib import Path
 from typing import Any
 
+from .._numerics import json_ready
 from ..errors import ModelFileError
 from .atomic import write_text
 
@@ -37,25 +37,9 @@ def utc_now() -> str:
 
 
 def jsonable(value: Any) -> Any:
-    """Plain JSON types: numpy scalars/arrays to Python, non-finite floats to None."""
-    import numpy as np
-
-    if isinstance(value, dict):
-        return {str(k): jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [jsonable(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return jsonable(value.tolist())
-    if isinstance(value, (np.bool_, bool)):
-        return bool(value)
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        v = float(value)
-        return v if math.isfinite(v) else None
-    if value is None or isinstance(value, (int, str)):
-        return value
-    return str(value)
+    """Plain JSON types in the project's one rule (:mod:`whiten._numerics`): numpy scalars and arrays
+    to Python, NaN to None, infinities to ``"inf"``/``"-inf"``; anything else unknown as its ``str``."""
+    return json_ready(value, other=str)
 
 
 def canonical(payload: dict) -> str:
@@ -80,8 +64,10 @@ def write_model(path: str | os.PathLike, fmt: str, payload: dict, *, force: bool
     return write_text(path, text, force=force, what="model")
 
 
-def read_model(path: str | os.PathLike, fmt: str) -> dict:
-    """Read and verify a model file written by :func:`write_model`; returns the payload.
+def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()) -> tuple[dict, str]:
+    """Read and verify a model file written by :func:`write_model`; returns ``(payload, format)``.
+
+    ``older`` lists earlier versions of ``fmt`` the caller can still read.
 
     Raises
     ------
@@ -112,7 +98,7 @@ def read_model(path: str | os.PathLike, fmt: str) -> dict:
     want_name, _, want_ver = fmt.partition("/")
     if not isinstance(got, str) or got.partition("/")[0] != want_name:
         raise ModelFileError(f"model file {str(p)!r} holds format {got!r}, expected {fmt!r}")
-    if got != fmt:
+    if got != fmt and got not in older:
         raise ModelFileError(
             f"model file {str(p)!r} is format version {got.partition('/')[2]!r}; this whiten reads "
             f"version {want_ver!r} ({fmt}). Refit the model with this version or upgrade whiten")
@@ -127,4 +113,4 @@ def read_model(path: str | os.PathLike, fmt: str) -> dict:
         raise ModelFileError(
             f"model file {str(p)!r} failed its SHA-256 check (stored {digest[:12]}..., computed "
             f"{actual[:12]}...): it was edited or damaged after writing; refit or restore it")
-    return payload
+    return payload, got

@@ -30,6 +30,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from .._engines import engine_for
 from .._settings import current
 from .._validate import as_float_array, as_rows
 from ..errors import ConditioningWarning, InputError
@@ -364,12 +365,9 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
     >>> bool(s.d2[1] > s.d2[0]) and bool(np.allclose(s.filter(like="chain:").sum(axis=1), s.d2))
     True
     """
-    from ..parallel.dask import is_dask_collection
-
-    if is_dask_collection(data):  # a lazy dask DataFrame back (see whiten.parallel.dask.score_dask)
-        from ..parallel.dask import score_dask
-
-        return score_dask(baseline, data, alpha=alpha, missing=missing, phase=phase, fdr=fdr, order=order)
+    engine = engine_for(data)
+    if engine is not None:  # e.g. dask: a lazy dask DataFrame back (see whiten.parallel.dask.score)
+        return engine.score(baseline, data, alpha=alpha, missing=missing, phase=phase, fdr=fdr, order=order)
     scorer = Scorer(baseline, alpha=alpha, missing=missing, phase=phase, order=order)
     if isinstance(data, (str, os.PathLike)):
         data = _read_path(data, scorer.columns)

@@ -38,6 +38,7 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
+from .._engines import engine_for
 from .._settings import current
 from .._validate import as_float_array, as_rows
 from .._warn import warn
@@ -859,18 +860,15 @@ def fit_linear(
         raise InputError(f"method: choose one of {list(METHODS)}, got {method!r}")
     if refine not in ("auto", True, False):
         raise InputError(f"refine: choose 'auto', True or False, got {refine!r}")
-    from ..parallel.dask import is_dask_collection
-
-    if is_dask_collection(X) or is_dask_collection(y):
+    engine = engine_for(X, y, weights)
+    if engine is not None:
         # the dask engine: R of [1 X y] reduced on the workers, residual passes there too
         unused = [k for k, v in (("error_cov", error_cov), ("ridge", ridge))
                   if v is not None] + (["standardize"] if standardize else [])
         if unused:
             raise InputError(f"{', '.join(unused)}: not available with dask input; compute the arrays first "
                              "(weights are: pass them as a dask array or Series aligned with the rows)")
-        from ..parallel.dask import fit_linear_dask
-
-        return fit_linear_dask(X, y, intercept=intercept, weights=weights, rank_policy=rank_policy,
+        return engine.fit_linear(X, y, intercept=intercept, weights=weights, rank_policy=rank_policy,
                                rank_tol=rank_tol, refine=refine)
     design = _prepare(X, y, intercept, weights, error_cov)
     if ridge is not None:

@@ -143,7 +143,7 @@ def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
                        "the distances describe that repaired matrix.", "alert")
         else:
             rep.health("Jitter", "None: the covariance factored as estimated, without repair.", "good")
-        route = getattr(h, "path", None) or getattr(h, "method", None)
+        route = getattr(h, "method", None)
         est = attrs.get("estimator") or getattr(baseline, "estimator", None)
         m = attrs.get("reference_rows")
         if est is None and not m:

@@ -1,0 +1,236 @@
+"""Rows from every supported input (array, DataFrame, table file, chunks), as raw blocks.
+
+A :class:`Source` knows where rows come from and whether they can be read
+again; it yields raw blocks (NaN kept) with their positions and labels. The
+missing-value policy and the weights are applied by
+:class:`whiten.baseline.cleaning.Cleaner`.
+"""
+
+from __future__ import annotations
+
+import os
+from typing import Any, Iterable, Iterator, Sequence
+
+import numpy as np
+
+from .. import _validate
+from .._settings import current
+from ..errors import InputError
+
+__all__ = ["Source", "array_column_names", "is_frame"]
+
+
+def is_frame(x: Any) -> bool:
+    return hasattr(x, "columns") and hasattr(x, "dtypes") and hasattr(x, "to_numpy")
+
+
+def array_column_names(columns: Sequence[str] | None, p: int) -> list[str]:
+    """Names for the p columns of an array: ``columns`` checked, or ``x0, x1, ...``."""
+    if columns is None:
+        return [f"x{k}" for k in range(p)]
+    names = [str(c) for c in columns]
+    if len(names) != p:
+        raise InputError(f"columns: {len(names)} name(s) given for an array with {p} columns")
+    if len(set(names)) != p:
+        raise InputError(f"columns: names must be unique, got {names}")
+    return names
+
+
+class Source:
+    """Rows from any supported input, as raw blocks (NaN possible), readable again when possible."""
+
+    def __init__(self, data: Any, columns: Sequence[str] | None, chunksize: int | None,
+                 index_column: str | None, weight_column: str | None, progress: bool | None):
+        self.weight_column = weight_column
+        self.progress = progress
+        self.chunksize = chunksize
+        self.total_rows: int | None = None
+        self._index_column: str | None = None
+        if chunksize is not None and (not isinstance(chunksize, (int, np.integer)) or chunksize < 1):
+            raise InputError(f"chunksize: expected a positive integer, got {chunksize!r}")
+        if isinstance(data, (str, os.PathLike)):
+            self._init_path(os.fspath(data), columns, index_column)
+        elif is_frame(data):
+            self._init_frame(data, columns, index_column)
+        elif isinstance(data, np.ndarray) or (isinstance(data, (list, tuple)) and (
+                len(data) == 0 or not (is_frame(data[0]) or (
+                    isinstance(data[0], np.ndarray) and data[0].ndim == 2)))):
+            self._init_array(data, columns, index_column)
+        elif isinstance(data, Iterable):
+            self._init_chunks(data, columns, index_column)
+        else:
+            raise InputError(
+                f"data: cannot read rows from a {type(data).__name__}; pass an array, a DataFrame, a CSV or "
+                "Parquet path, or an iterable of DataFrame chunks")
+
+    # -- kinds
+    def _init_path(self, path: str, columns, index_column) -> None:
+        from pathlib import Path
+
+        from ..io.tables import _select, read_table_chunks, table_columns
+
+        extra = [self.weight_column] if self.weight_column else []
+        # validate now (missing file, columns) so errors come before any work
+        header = table_columns(path)
+        cols, _ = _select(Path(path), header, columns, index_column, extra)
+        self.names = cols
+        self.reiterable = True
+        self.label = f"data file {path!r}"
+
+        def frames():
+            from ..io.tables import progress
+
+            chunks = read_table_chunks(path, columns if columns is not None else cols, self.chunksize,
+                                       index_column, extra_columns=extra)
+            return progress(chunks, desc="reading", enabled=self.progress)
+
+        self._frames = frames
+        self._array = None
+
+    def _init_frame(self, df, columns, index_column) -> None:
+        if index_column is not None:
+            if index_column not in df.columns:
+                raise InputError(f"index_column: {index_column!r} is not a column of the DataFrame")
+            df = df.set_index(index_column)
+        names_all = [str(c) for c in df.columns]
+        wcol = self.weight_column
+        if wcol is not None and wcol not in names_all:
+            raise InputError(f"weights: column {wcol!r} not found in the DataFrame; columns are {names_all}")
+        if columns is None:
+            cols = [c for c, s in zip(df.columns, names_all) if s != wcol]
+        else:
+            want = [str(c) for c in columns]
+            missing = [c for c in want if c not in names_all]
+            if missing:
+                extra = [c for c in names_all if c not in want and c != wcol]
+                raise InputError(f"columns: missing {missing} in the DataFrame; not selected: {extra}")
+            lookup = {s: c for c, s in zip(df.columns, names_all)}
+            cols = [lookup[c] for c in want]
+        values, names, index = _validate.as_float_array(df[cols], name="data", ndim=(2,), allow_nan=True)
+        self.names = names
+        self._array = values
+        self._index = index
+        self._wvals = None
+        if wcol is not None:
+            w, _, _ = _validate.as_float_array(df[wcol], name=f"weights column {wcol!r}", ndim=(1,), allow_nan=True)
+            self._wvals = w
+        self.reiterable = True
+        self.label = "DataFrame"
+        self.total_rows = values.shape[0]
+
+    def _init_array(self, data, columns, index_column=None) -> None:
+        if index_column is not None:
+            raise InputError("index_column: works with DataFrame or file input; an array has no columns to "
+                             "take labels from")
+        if self.weight_column is not None:
+            raise InputError("weights: a column name works with DataFrame or file input; pass an array of weights")
+        arr = np.asarray(data)
+        if arr.ndim == 2 and arr.dtype.kind in "biuf":
+            # no copy for float64 input; infinities are caught block by block by the cleaner,
+            # which saves a full pass (and an N x p mask) over a large array
+            values = arr.astype(np.float64, copy=False)
+        else:  # the general converter gives the precise message
+            values, _, _ = _validate.as_float_array(data, name="data", ndim=(2,), allow_nan=True)
+        self.names = array_column_names(columns, values.shape[1])
+        self._array = values
+        self._index = None
+        self._wvals = None
+        self.reiterable = True
+        self.label = "array"
+        self.total_rows = values.shape[0]
+
+    def _init_chunks(self, data, columns, index_column) -> None:
+        self.reiterable = isinstance(data, (list, tuple))
+        self._chunks_src = data
+        self._array = None
+        self._consumed = False
+        self.label = "chunks"
+        self._index_column = index_column
+        self._columns_arg = None if columns is None else [str(c) for c in columns]
+        self.names = self._columns_arg  # may be set by the first chunk
+        if self.names is None:
+            if self.reiterable and len(data):
+                first = data[0]
+                self.names = self._chunk_names(first)
+            elif not self.reiterable:
+                it = iter(data)
+                try:
+                    first = next(it)
+                except StopIteration:
+                    raise InputError("data: the iterable of chunks is empty") from None
+                self.names = self._chunk_names(first)
+                import itertools
+
+                self._chunks_src = itertools.chain([first], it)
+            else:
+                raise InputError("data: the list of chunks is empty")
+
+        def frames():
+            if not self.reiterable:
+                if self._consumed:
+                    raise InputError("data: the chunk iterator was already consumed; pass a list to read it twice")
+                self._consumed = True
+            from ..io.tables import progress
+
+            return progress(self._chunks_src, desc="chunks", enabled=self.progress)
+
+        self._frames = frames
+
+    def _chunk_names(self, chunk) -> list[str]:
+        if is_frame(chunk):
+            cols = [str(c) for c in chunk.columns]
+            drop = {self.weight_column, self._index_column}
+            return [c for c in cols if c not in drop]
+        arr = np.asarray(chunk)
+        if arr.ndim != 2:
+            raise InputError(f"data: chunks must be 2-D, got shape {arr.shape}")
+        return [f"x{k}" for k in range(arr.shape[1])]
+
+    # -- blocks
+    def raw_blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None, np.ndarray, Any]]:
+        """(values with NaN, weights-from-column or None, positions, labels) per block."""
+        if self._array is not None:
+            rows = max(1, int(current().block_rows))
+            if self.chunksize is not None:
+                rows = int(self.chunksize)
+            n = self._array.shape[0]
+            for a in range(0, n, rows):
+                b = min(a + rows, n)
+                w = None if self._wvals is None else self._wvals[a:b]
+                lab = None if self._index is None else self._index[a:b]
+                yield self._array[a:b], w, np.arange(a, b), lab
+            return
+        offset = 0
+        for k, chunk in enumerate(self._frames()):
+            vals, w, lab = self._convert_chunk(chunk, k)
+            m = vals.shape[0]
+            yield vals, w, np.arange(offset, offset + m), lab
+            offset += m
+        self.total_rows = offset
+
+    def _convert_chunk(self, chunk, k: int):
+        where = f"chunk {k}"
+        if is_frame(chunk):
+            if self._index_column is not None and self._index_column in chunk.columns:
+                chunk = chunk.set_index(self._index_column)
+            cols = [str(c) for c in chunk.columns]
+            missing = [c for c in self.names if c not in cols]
+            if missing:
+                extra = [c for c in cols if c not in self.names and c != self.weight_column]
+                raise InputError(f"data ({where}): missing column(s) {missing}; extra: {extra}")
+            lookup = {str(c): c for c in chunk.columns}
+            vals, _, index = _validate.as_float_array(chunk[[lookup[c] for c in self.names]],
+                                                      name=f"data ({where})", ndim=(2,), allow_nan=True)
+            w = None
+            if self.weight_column is not None:
+                if self.weight_column not in lookup:
+                    raise InputError(f"data ({where}): weights column {self.weight_column!r} not found")
+                w, _, _ = _validate.as_float_array(chunk[lookup[self.weight_column]], name="weights",
+                                                   ndim=(1,), allow_nan=True)
+            return vals, w, index
+        if self.weight_column is not None:
+            raise InputError(f"data ({where}): a weights column needs DataFrame chunks")
+        vals, _, _ = _validate.as_float_array(chunk, name=f"data ({where})", ndim=(2,), allow_nan=True)
+        if vals.shape[1] != len(self.names):
+            raise InputError(f"data ({where}): expected {len(self.names)} columns, got {vals.shape[1]}")
+        return vals, None, None

@@ -1,0 +1,112 @@
+"""The baseline model file: format ``whiten.baseline/2`` (JSON payload + SHA-256, :mod:`whiten.io.modelfile`).
+
+Payload fields: ``columns``, ``n``, ``weight_sum``, ``mean``, ``factor_lower``
+(row ``i`` holds the ``i + 1`` entries of the lower factor's row), ``estimator``,
+``params``, ``health`` (the :class:`BaselineHealth` fields), ``created_utc``,
+``library_version``. Numbers follow the project's JSON rule (NaN as null,
+infinities as ``"inf"``/``"-inf"``). Version 1 files (whose health record
+named the numerical route ``path``) are still read.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+from typing import Any
+
+import numpy as np
+
+from .._numerics import from_json_number
+from .._version import __version__
+from ..errors import InputError, ModelFileError, NotPositiveDefiniteError
+from ..io.modelfile import jsonable, read_model, utc_now, write_model
+from ..linalg.factor import Factor, _health_of
+from .health import BaselineHealth
+
+__all__ = ["MODEL_FORMAT", "ESTIMATORS", "payload_of", "save_payload", "read_payload"]
+
+MODEL_FORMAT = "whiten.baseline/2"
+_OLDER = ("whiten.baseline/1",)
+#: the estimators a model file may name
+ESTIMATORS = ("sample", "shrinkage", "robust")
+_FLOAT_FIELDS = ("rcond", "rcond_scaled", "digits_lost", "jitter", "jitter_relative")
+
+
+def payload_of(baseline: Any) -> dict:
+    """The model-file payload of a baseline (plain JSON values, without the checksum)."""
+    low = baseline.factor.lower
+    return jsonable({
+        "columns": baseline.columns,
+        "n": baseline.n,
+        "weight_sum": baseline.weight_sum,
+        "mean": baseline.mean.tolist(),
+        "factor_lower": [low[i, : i + 1].tolist() for i in range(low.shape[0])],
+        "estimator": baseline.estimator,
+        "params": baseline.params,
+        "health": dataclasses.asdict(baseline.health),
+        "created_utc": baseline.created_utc,
+        "library_version": __version__,
+    })
+
+
+def save_payload(payload: dict, path: str | os.PathLike, *, force: bool = False):
+    """Write a payload atomically (stamping ``created_utc`` if unset); returns the path."""
+    if payload["created_utc"] is None:
+        payload = dict(payload, created_utc=utc_now())
+    return write_model(path, MODEL_FORMAT, payload, force=force)
+
+
+def read_payload(path: str | os.PathLike) -> dict:
+    """The keyword arguments of ``Baseline(...)`` read back from a model file, checked.
+
+    Raises
+    ------
+    ModelFileError
+        Missing, damaged, edited, another format, or an inconsistent payload.
+    """
+    source = os.fspath(path)
+    payload, fmt = read_model(path, MODEL_FORMAT, older=_OLDER)
+
+    def bad(msg: str) -> ModelFileError:
+        return ModelFileError(f"model file {source!r}: {msg}")
+
+    try:
+        cols = [str(c) for c in payload["columns"]]
+        p = len(cols)
+        mean = np.asarray(payload["mean"], dtype=np.float64)
+        rows = payload["factor_lower"]
+        low = np.zeros((p, p))
+        if len(rows) != p or mean.shape != (p,):
+            raise bad(f"mean/factor sizes do not match the {p} columns")
+        for i, r in enumerate(rows):
+            if len(r) != i + 1:
+                raise bad(f"factor row {i} has {len(r)} entries, expected {i + 1}")
+            low[i, : i + 1] = np.asarray(r, dtype=np.float64)
+        hd = dict(payload["health"])
+        if fmt == "whiten.baseline/1" and "path" in hd:
+            hd["method"] = hd.pop("path")
+        known = {f.name for f in dataclasses.fields(BaselineHealth)}
+        if set(hd) != known:
+            raise bad(f"health fields {sorted(set(hd) ^ known)} missing or unknown")
+        for k in _FLOAT_FIELDS:
+            hd[k] = from_json_number(hd[k])
+        if hd["gram_digits_lost"] is not None:
+            hd["gram_digits_lost"] = from_json_number(hd["gram_digits_lost"])
+        health = BaselineHealth(**hd)
+        n = int(payload["n"])
+        est = str(payload["estimator"])
+    except ModelFileError:
+        raise
+    except (KeyError, TypeError, ValueError) as exc:
+        raise bad(f"payload is incomplete or malformed ({type(exc).__name__}: {exc})") from None
+    if est not in ESTIMATORS:
+        raise bad(f"unknown estimator {est!r}")
+    if not np.isfinite(mean).all() or not np.isfinite(low).all():
+        raise bad("mean or factor holds non-finite values")
+    try:
+        f0 = Factor.from_lower(low, names=cols, jitter=health.jitter)
+    except (InputError, NotPositiveDefiniteError) as exc:
+        raise bad(f"the factor is not a valid Cholesky factor ({exc})") from None
+    f = Factor(low, _health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)
+    return dict(mean=mean, factor=f, n=n, columns=cols, estimator=est, params=dict(payload.get("params") or {}),
+                health=health, weight_sum=float(payload.get("weight_sum", n)), created_utc=payload.get("created_utc"))
