@@ -5,10 +5,15 @@ from __future__ import annotations
 import dataclasses
 import math
 
-from .._numerics import digits_trusted
-from ..linalg.factor import Factor
+import numpy as np
 
-__all__ = ["BaselineHealth", "health_from_factor"]
+from .._numerics import digits_trusted
+from typing import Sequence
+
+from ..linalg.factor import Factor
+from ..linalg.pivoted import RankReport, pivoted_cholesky
+
+__all__ = ["BaselineHealth", "health_from_factor", "redundancy"]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -85,3 +90,16 @@ def health_from_factor(f: Factor, **kw) -> BaselineHealth:
     return BaselineHealth(rcond=h.rcond, rcond_scaled=h.rcond_scaled, digits_lost=h.digits_lost,
                           jitter=h.jitter, jitter_relative=h.jitter_relative, **kw)
 
+
+def redundancy(factor: Factor, tol: float, columns: Sequence[str] | None = None) -> RankReport:
+    """Which columns of a covariance are (nearly) linear combinations of the others.
+
+    The pivoted Cholesky factorization (LAPACK ``dpstrf``) of the covariance as
+    estimated -- any diagonal jitter taken off again, so the estimate is judged
+    rather than its repair -- with relative tolerance ``tol`` on the share of a
+    column's variance left unexplained by the columns before it.
+    """
+    m = factor.matrix()
+    m[np.diag_indices_from(m)] -= float(factor.jitter)
+    names = list(columns) if columns is not None else factor.names
+    return pivoted_cholesky(m, tol=tol, names=list(names) if names is not None else None)

@@ -23,7 +23,7 @@ from typing import Any
 import numpy as np
 
 from .._version import __version__
-from .document import Bullets, Figure, Paragraph, Report, Table
+from .blocks import Bullets, Figure, Paragraph, Table
 
 __all__ = ["render", "CSP"]
 
@@ -126,7 +126,7 @@ def _is_num(value: Any) -> bool:
     return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, (bool, np.bool_))
 
 
-def _figures(rep: Report) -> str:
+def _figures(rep: Any) -> str:
     if not rep.figures:
         return ""
     tiles = []
@@ -140,7 +140,7 @@ def _figures(rep: Report) -> str:
             f'<dl class="tiles">{"".join(tiles)}</dl></section>')
 
 
-def _trust(rep: Report) -> str:
+def _trust(rep: Any) -> str:
     if not rep.trust:
         return ""
     items = "".join(f'<li class="tone-{t.tone}"><span class="topic">{_e(t.topic)}.</span>{_e(t.words)}</li>'
@@ -191,7 +191,7 @@ def _block(b: Any) -> str:
     raise TypeError(f"unknown report block {type(b).__name__}")  # pragma: no cover - internal
 
 
-def _record(rep: Report) -> str:
+def _record(rep: Any) -> str:
     pv = rep.provenance
     rows = [("Command", f"<code>{_e(pv.command)}</code>" if pv.command else
              "called from Python (no command line)"),
@@ -217,7 +217,7 @@ def _record(rep: Report) -> str:
             f"<dl>{dl}</dl>{files}</section>")
 
 
-def render(rep: Report) -> str:
+def render(rep: Any) -> str:
     """The HTML text of a report (UTF-8, one file, nothing fetched)."""
     job = f"{_e(rep.job)} report · " if rep.job else ""
     lede = f'<p class="lede">{_e(rep.lede)}</p>' if rep.lede else ""

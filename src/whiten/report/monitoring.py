@@ -10,6 +10,7 @@ from typing import Any
 import numpy as np
 
 from .._settings import current
+from ..baseline.health import redundancy
 from ..errors import InputError
 from .document import Report, format_number
 from .provenance import Provenance
@@ -96,16 +97,11 @@ REDUNDANT = 1e-6
 
 def _redundancy(rep: Report, baseline: Any) -> None:
     """Name sensors that are (nearly) linear combinations of others (pivoted Cholesky, LAPACK dpstrf)."""
-    from ..linalg.pivoted import pivoted_cholesky
-
     factor = getattr(baseline, "factor", None)
     if factor is None:
         return
-    m = factor.matrix()
-    m[np.diag_indices_from(m)] -= float(factor.jitter)  # judge the estimate, not its repair
-    names = getattr(baseline, "columns", None) or factor.names
     try:
-        rr = pivoted_cholesky(m, tol=REDUNDANT, names=list(names) if names is not None else None)
+        rr = redundancy(factor, REDUNDANT, getattr(baseline, "columns", None) or None)
     except InputError:  # pragma: no cover - the factor's matrix is square and finite
         return
     if rr.full_rank:
