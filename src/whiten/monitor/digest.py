@@ -77,6 +77,9 @@ class ScoreDigest:
         self._by_p = None  # small DataFrames of whole rows
         self._by_d2 = None
         self.index_name: str | None = None
+        # what whiten.monitor.score_file read: the file, and its columns not in the model
+        self.source: str | None = None
+        self.ignored_columns: list[str] = []
 
     # ------------------------------------------------------------------ feed
     @classmethod

@@ -72,10 +72,15 @@ def bh_threshold(p_values: Any, q: float) -> float:
     return float(p[hits[-1]]) if hits.size else -np.inf
 
 
-def add_fdr(cols: dict, q: float) -> None:
-    """Insert ``p_bh`` and ``alarm_fdr`` (after ``alarm``) into a dict of score columns."""
+def add_fdr(cols: dict, q: float, adjusted: Any = None) -> None:
+    """Insert ``p_bh`` and ``alarm_fdr`` (after ``alarm``) into a dict of score columns.
+
+    ``adjusted`` gives the adjusted p-values of these rows when they were
+    computed over a larger batch (the whole file, in the streaming scorer);
+    by default they are adjusted across ``cols`` itself.
+    """
     q = check_alpha(q, "fdr")
-    adj = bh_adjust(cols["p_value"])
+    adj = bh_adjust(cols["p_value"]) if adjusted is None else np.asarray(adjusted, dtype=float)
     flag = np.zeros(adj.shape, dtype=bool)
     ok = ~np.isnan(adj)
     flag[ok] = adj[ok] <= q

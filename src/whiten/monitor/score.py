@@ -40,7 +40,7 @@ def _read_path(path: str | os.PathLike, columns: Sequence[str]):
     import pandas as pd
 
     table = open_table(path)
-    cols = table.select(columns, what="the baseline")
+    cols = table.select(columns, what="the model")
     return pd.concat(list(table.chunks(cols)))
 
 

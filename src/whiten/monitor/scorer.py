@@ -145,7 +145,7 @@ class Scorer:
         """Validate data into an (N, p) float array in model column order, and its index."""
         if hasattr(data, "columns") and hasattr(data, "dtypes"):
             # extra columns are ignored; the reader's wording for the missing ones
-            select_columns(data.columns, self.columns, where=name, what="the baseline")
+            select_columns(data.columns, self.columns, where=name, what="the model")
         x, _, index = as_rows(data, self.p, names=self.columns, name=name,
                               allow_nan=(self.missing == "marginalize"))
         return x, index
