@@ -9,13 +9,12 @@ what a summary, a chart or a report needs is kept in a bounded
 from __future__ import annotations
 
 import os
-from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
 
 from ..errors import InputError
-from ..io.atomic import atomic_open, check_writable
+from ..io.atomic import atomic_open, check_writable, same_file
 from ..io.tables import Table, open_table, progress as _progress, write_csv_chunk
 from .digest import ScoreDigest
 from .fdr import add_fdr, bh_adjust
@@ -95,7 +94,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         fdr = check_alpha(fdr, "fdr")
     table = data_path if isinstance(data_path, Table) else open_table(data_path)
     out = check_writable(output_path, force=force, what="output")
-    if _same_file(out, table.path):
+    if same_file(out, table.path):
         raise InputError(f"output: {str(out)!r} names the data file being read; write the scores elsewhere")
     cols = table.select(scorer.columns, index_column=index_column, what="the model")
     digest = ScoreDigest(scorer.columns, attrs=scorer.attrs(fdr), worst=worst, chart_points=chart_points)
@@ -153,11 +152,3 @@ def _values(chunk: Any, scorer: Scorer, table: Table, first: int) -> np.ndarray:
                              f"{scorer.columns[c]!r} is {x[r, c]}{hint}; every value must be a finite number")
     return x
 
-
-def _same_file(a: Path, b: Path) -> bool:
-    if a.exists():
-        try:
-            return os.path.samefile(a, b)
-        except OSError:
-            pass
-    return a.resolve() == b.resolve()
