@@ -17,7 +17,6 @@ import sys
 from pathlib import Path
 from typing import Any, Iterable, Iterator, Sequence
 
-
 from ..errors import InputError
 from ._cells import float_block
 

@@ -15,7 +15,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..io.atomic import atomic_open, check_writable, same_file
-from ..io.tables import Table, open_table, progress as _progress, write_csv_chunk
+from ..io.tables import Table, open_table, write_csv_chunk
+from ..io.tables import progress as _progress
 from .digest import ScoreDigest
 from .fdr import add_fdr, bh_adjust
 from .limits import check_alpha
@@ -115,7 +116,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         for k, chunk in _numbered(passes("scoring" if adjusted is None else "pass 2/2")):
             scores = scorer.score_array(_values(chunk, scorer, table, k))
             m = len(chunk)
-            if adjusted is not None:
+            if adjusted is not None and fdr is not None:
                 if n_rows + m > adjusted.shape[0]:
                     raise InputError(f"{table.where} changed while it was read twice for fdr; score it again")
                 add_fdr(scores, fdr, adjusted[n_rows:n_rows + m])
