@@ -72,7 +72,7 @@ def test_cli_errors_are_one_line(tmp_path, table, capsys):
     assert main(["baseline", str(tmp_path / "absent.csv"), "-o", str(out)]) == 1
     assert "not found" in capsys.readouterr().err
     assert main(["baseline", str(f), "-o", str(out), "--columns", "supply,nope"]) == 1
-    assert "missing column(s) ['nope']" in capsys.readouterr().err
+    assert "missing columns ['nope']" in capsys.readouterr().err
     assert main(["baseline", str(f), "-o", str(out), "--columns", "supply,return,flow", "--index-column",
                  "stamp"]) == 0
     capsys.readouterr()

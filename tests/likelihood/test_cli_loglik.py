@@ -77,7 +77,7 @@ def test_loglik_refuses_overwrite_then_force(tmp_path, capsys):
 @pytest.mark.parametrize("edit, message", [
     (lambda p: pd.DataFrame(COV[:2], columns=NAMES).to_csv(p / "cov.csv", index=False), "square"),
     (lambda p: pd.DataFrame([[1.0, 2.0, 3.0]], columns=["inlet", "outlet", "speed"]).to_csv(
-        p / "mean.csv", index=False), r"missing \['flow'\], extra \['speed'\]"),
+        p / "mean.csv", index=False), r"missing columns \['flow'\], extra columns \['speed'\]"),
     (lambda p: pd.DataFrame(np.diag([1.0, -1.0, 1.0]), columns=NAMES).to_csv(p / "cov.csv", index=False),
      "negative"),
     (lambda p: pd.DataFrame({"inlet": [1.0], "outlet": [2.0]}).to_csv(p / "data.csv", index=False),
@@ -117,22 +117,16 @@ def test_loglik_baseline_missing_loader_is_clear(tmp_path, capsys, monkeypatch):
     assert len(err) == 1 and "load_baseline is missing" in err[0]
 
 
-def test_loglik_without_chunked_reader(tmp_path, capsys, monkeypatch):
-    # the plain pandas path used when whiten.io.tables is not available
-    import sys
-
-    monkeypatch.setitem(sys.modules, "whiten.io.tables", None)
-    x = _write_inputs(tmp_path)
-    out = tmp_path / "ll.csv"
-    assert main(["loglik", str(tmp_path / "data.csv"), "--mean", str(tmp_path / "mean.csv"),
-                 "--cov", str(tmp_path / "cov.csv"), "-o", str(out)]) == 0
-    res = pd.read_csv(out)
-    ref = stats.multivariate_normal(MEAN, COV).logpdf(x[0])  # scipy.stats reference
-    assert res.loglik[0] == pytest.approx(ref, rel=1e-12)
-    pd.DataFrame({"inlet": [1.0], "outlet": ["warm"], "flow": [1.0]}).to_csv(tmp_path / "bad.csv", index=False)
+def test_loglik_names_a_bad_data_cell(tmp_path, capsys):
+    # the data table goes through whiten.io.tables: file, line, data row and column named
+    _write_inputs(tmp_path)
+    pd.DataFrame({"inlet": [1.0, 2.0], "outlet": [1.0, "warm"], "flow": [1.0, 1.0]}).to_csv(
+        tmp_path / "bad.csv", index=False)
     assert main(["loglik", str(tmp_path / "bad.csv"), "--mean", str(tmp_path / "mean.csv"),
                  "--cov", str(tmp_path / "cov.csv"), "-o", str(tmp_path / "b.csv")]) == 1
-    assert "row 0, column 'outlet' holds 'warm'" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "column 'outlet' is not numeric: row 1 (0-based data row; line 3 of the file) holds 'warm'" in err
+    assert not (tmp_path / "b.csv").exists()
 
 
 def test_loglik_with_baseline_file(tmp_path, capsys):

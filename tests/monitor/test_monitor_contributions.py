@@ -172,7 +172,7 @@ def test_inputs(setup, tmp_path):
     path = tmp_path / "rows.csv"
     df.to_csv(path, index=False)
     assert np.allclose(score(b, path)["d2"], base["d2"], rtol=1e-12)
-    with pytest.raises(InputError, match=r"missing \['vib'\], extra \['vibration'\]"):
+    with pytest.raises(InputError, match=r"does not match the model: missing columns \['vib'\], extra columns \['vibration'\]"):
         score(b, df.rename(columns={"vib": "vibration"}))
     with pytest.raises(InputError, match="expected 6 columns"):
         score(b, new[:, :5])

@@ -78,7 +78,7 @@ def test_errors_are_one_line(kiln_csv, tmp_path, capsys):
     rc = main(["regress", str(path), "--response", "energy_kwh", "--predictors", "tc_upper,nozzle,damper",
                "-o", str(tmp_path / "x.json")])
     err = capsys.readouterr().err
-    assert rc == 1 and "no column(s) ['nozzle', 'damper']" in err and len(err.strip().splitlines()) == 1
+    assert rc == 1 and "missing columns ['nozzle', 'damper']" in err and len(err.strip().splitlines()) == 1
     bad = df.astype({"fan_rpm": object})
     bad.loc[7, "fan_rpm"] = "n/a?"
     p2 = tmp_path / "bad.csv"
@@ -87,7 +87,7 @@ def test_errors_are_one_line(kiln_csv, tmp_path, capsys):
     err = capsys.readouterr().err
     assert rc == 1 and "'fan_rpm'" in err and "row 7" in err and len(err.strip().splitlines()) == 1
     rc = main(["regress", str(tmp_path / "absent.csv"), "--response", "y", "-o", str(tmp_path / "x.json")])
-    assert rc == 1 and "does not exist" in capsys.readouterr().err
+    assert rc == 1 and "not found" in capsys.readouterr().err
     assert not (tmp_path / "x.json").exists()
 
 

@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from ..io.tables import select_columns
 
 EPILOG = """\
 examples:
@@ -34,7 +35,7 @@ def add_parser(sub) -> None:
         description="Gaussian log-likelihood of every row of DATA under a mean and covariance given as "
                     "CSV files or by a baseline model file; missing values are marginalized.",
         epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
-    p.add_argument("data", metavar="DATA", help="table of rows (.csv)")
+    p.add_argument("data", metavar="DATA", help="table of rows (.csv, .tsv, .parquet)")
     src = p.add_mutually_exclusive_group(required=True)
     src.add_argument("--baseline", metavar="MODEL.json", help="model file from `whiten baseline`")
     src.add_argument("--mean", metavar="FILE", help="CSV with the mean (use with --cov)")
@@ -94,11 +95,7 @@ def _read_mean(path: str, names: list[str]) -> np.ndarray:
     frame = _read_csv(path, "--mean")
     cols = [str(c).strip() for c in frame.columns]
     if frame.shape[0] == 1 and frame.shape[1] == len(names):
-        if sorted(cols) != sorted(names):
-            missing = [n for n in names if n not in cols]
-            extra = [c for c in cols if c not in names]
-            raise InputError(f"--mean file {path!r}: names differ from the covariance's: missing {missing}, "
-                             f"extra {extra}")
+        select_columns(cols, names, where=f"--mean file {path!r}", what="the covariance's names", exact=True)
         frame.columns = cols
         return _numbers(frame[names], "--mean", path)[0]
     if frame.shape[1] == 1 and frame.shape[0] == len(names):
@@ -131,62 +128,18 @@ def _model(args):
     return Gaussian(mean, cholesky(cov, names=names), names=names), names
 
 
-def _chunks(path: str, names: list[str]):
-    """Frames of the model's columns: the chunked table reader when present, else one pandas read."""
-    try:
-        from ..io.tables import read_table_chunks
-    except ImportError:
-        read_table_chunks = None
-    if read_table_chunks is not None:
-        yield from read_table_chunks(path, columns=names)
-        return
-    import pandas as pd
-
-    frame = _read_csv(path, "data")
-    frame.columns = [str(c).strip() for c in frame.columns]
-    missing = [n for n in names if n not in frame.columns]
-    if missing:
-        raise InputError(f"data file {path!r}: missing columns {missing} (the model has {names})")
-    vals = frame[names].apply(pd.to_numeric, errors="coerce")
-    bad = vals.isna().to_numpy() & ~frame[names].isna().to_numpy()
-    if bad.any():
-        r, c = np.argwhere(bad)[0]
-        raise InputError(f"data file {path!r}: row {r}, column {names[c]!r} holds {frame[names].iloc[r, c]!r}, "
-                         "not a number")
-    yield vals
-
-
 def run(args) -> int:
-    from ..io.atomic import atomic_open, check_writable
+    from ..io.atomic import check_writable
+    from ..likelihood.stream import loglik_file
 
     check_writable(args.output, force=args.force)
     report = getattr(args, "report", None)
     if report:
         check_writable(report, force=args.force, what="report")
-    parts = []  # per-chunk evaluations, kept only for --report
     g, names = _model(args)
-    total, evaluated, partial, empty, rows = 0.0, 0, 0, 0, 0
     # streamed into a temporary sibling, renamed into place only when complete
-    with atomic_open(args.output, "w", force=args.force) as fh:
-        fh.write("row,loglik,d2,n_observed\n")
-        for chunk in _chunks(args.data, names):
-            ev = g.evaluate(chunk[names].to_numpy(dtype=float), missing="marginalize")
-            if report:
-                parts.append(ev)
-            lines = []
-            for k in range(len(ev.logpdf)):
-                nobs = int(ev.n_observed[k])
-                if nobs == 0:
-                    lines.append(f"{rows + k},,,0\n")
-                    empty += 1
-                    continue
-                ll = float(ev.logpdf[k])
-                lines.append(f"{rows + k},{ll!r},{float(ev.d2[k])!r},{nobs}\n")
-                total += ll
-                evaluated += 1
-                partial += nobs < len(names)
-            fh.write("".join(lines))
-            rows += len(ev.logpdf)
+    res = loglik_file(g, args.data, args.output, names=names, force=args.force, keep_rows=bool(report))
+    total, evaluated, partial, empty, rows = res.total, res.evaluated, res.partial, res.empty, res.rows
     note = f"; {partial} with missing values evaluated on their marginal" if partial else ""
     note += f"; {empty} with no values skipped" if empty else ""
     print(f"total log-likelihood {total:.10g} over {evaluated} of {rows} rows ({len(names)} variables{note})")
@@ -195,12 +148,11 @@ def run(args) -> int:
     print(f"covariance: about {h.digits_trusted:.0f} significant digits trusted in solves (rcond {h.rcond:.3g}{jit})")
     print(f"wrote {args.output}")
     if report:  # --report: one self-contained HTML file (whiten.report)
-        from ..gaussian import RowEvaluation
         from ..report import cli_provenance, likelihood_report
 
-        if not parts:
+        ev = res.evaluation
+        if ev is None:
             raise InputError(f"--report: no rows were read from {args.data!r}; nothing to report")
-        ev = RowEvaluation(*(np.concatenate([getattr(e, k) for e in parts]) for k in ("d2", "logpdf", "n_observed")))
         files = [f for f in (args.data, args.mean, args.cov) if f]
         likelihood_report(ev, g, provenance=cli_provenance(args, inputs=files, model=args.baseline)
                           ).write(report, force=args.force)

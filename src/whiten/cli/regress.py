@@ -64,36 +64,31 @@ def add_parser(sub) -> None:
 
 
 def _read_table(path: str):
+    """The table, opened by the one reader (whiten.io.tables): file checked, header read."""
+    from ..io.tables import open_table
+
+    return open_table(path)
+
+
+def _select(table, args):
+    """(predictors, the used columns as one float64 frame); every row kept, NaN left to the fit to name."""
     import pandas as pd
 
-    if not os.path.exists(path):
-        raise InputError(f"data file {path!r} does not exist")
-    sep = "\t" if path.lower().endswith(".tsv") else ","
-    try:
-        return pd.read_csv(path, sep=sep)
-    except (pd.errors.ParserError, UnicodeDecodeError, pd.errors.EmptyDataError) as exc:
-        raise InputError(f"{path}: could not be read as a table ({str(exc).splitlines()[0]})") from None
-
-
-def _select(df, args):
-    cols = [str(c) for c in df.columns]
-    df.columns = cols
     wanted = [args.response] + ([args.weights] if args.weights else [])
     if args.predictors:
         preds = [c.strip() for c in args.predictors.split(",") if c.strip()]
         if not preds:
             raise InputError("--predictors: give at least one column name, e.g. --predictors a,b")
+        if args.response in preds:
+            raise InputError(f"--predictors: the response {args.response!r} cannot also be a predictor")
+        dup = sorted({c for c in preds if preds.count(c) > 1})
+        if dup:
+            raise InputError(f"--predictors: {dup} listed more than once")
     else:
-        preds = [c for c in cols if c not in wanted]
-    missing = [c for c in wanted + preds if c not in cols]
-    if missing:
-        raise InputError(f"{args.data}: no column(s) {missing}; the file has {cols}")
-    if args.response in preds:
-        raise InputError(f"--predictors: the response {args.response!r} cannot also be a predictor")
-    dup = sorted({c for c in preds if preds.count(c) > 1})
-    if dup:
-        raise InputError(f"--predictors: {dup} listed more than once")
-    return preds
+        preds = None
+    preds = table.select(preds, what="--response/--predictors/--weights", also=wanted)
+    used = list(dict.fromkeys(wanted + preds))
+    return preds, pd.concat(list(table.chunks(used)))
 
 
 def _fmt(v: float, width: int = 0) -> str:
@@ -232,8 +227,7 @@ def run(args) -> int:
         check_writable(args.report, force=args.force, what="report")
     if not 0 < args.level < 1:
         raise InputError(f"--level: must be strictly between 0 and 1 (e.g. 0.95), got {args.level}")
-    df = _read_table(args.data)
-    preds = _select(df, args)
+    preds, df = _select(_read_table(args.data), args)
     x = df[preds]
     y = df[args.response]
     w = df[args.weights] if args.weights else None

@@ -9,7 +9,6 @@ from pathlib import Path
 
 import numpy as np
 
-from ..io.tables import write_csv_chunk
 from ..errors import InputError
 
 EPILOG = """\
@@ -72,29 +71,11 @@ def add_parser(sub) -> None:
     p.set_defaults(func=run)
 
 
-def _chunks(args, columns):
-    from ..io.tables import read_table_chunks
-
-    return read_table_chunks(args.data, columns=columns, chunksize=args.chunksize,
-                             index_column=args.index_column)
-
-
-def _progress(it, desc):
-    from ..io.tables import progress
-
-    return progress(it, desc=desc, unit="chunk")
-
-
 def run(args) -> int:
-    import pandas as pd
-
     from .. import load_baseline
-    from ..io.atomic import atomic_open, check_writable
-    from ..io.tables import table_columns
-    from ..monitor.fdr import bh_adjust
+    from ..io.atomic import check_writable
     from ..monitor.limits import check_alpha
-    from ..monitor.digest import ScoreDigest
-    from ..monitor.score import Scorer
+    from ..monitor.stream import score_file
 
     check_alpha(args.alpha)
     if args.fdr is not None:
@@ -119,76 +100,39 @@ def run(args) -> int:
     if getattr(args, "report", None):
         check_writable(args.report, force=args.force, what="report")
     baseline = load_baseline(model_path)
-    scorer = Scorer(baseline, alpha=args.alpha, phase=args.phase)
-    header = table_columns(args.data)
-    ignored = [c for c in header if c not in scorer.columns and c != args.index_column]
-    missing = [c for c in scorer.columns if c not in header]
-    if missing:
-        raise InputError(f"data file {args.data!r} does not match the model: missing columns {missing}, "
-                         f"extra columns {ignored}")
-
-    adjusted = None
-    if args.fdr is not None:
-        # pass 1: every p-value, so the step-up threshold sees the whole file
-        ps = [scorer.score_array(ch.to_numpy())["p_value"] for ch in _progress(_chunks(args, scorer.columns), "pass 1/2")]
-        adjusted = bh_adjust(np.concatenate(ps)) if ps else np.empty(0)
-
-    # what the summary, the charts and the report need, in bounded memory (whiten.monitor.ScoreDigest):
+    # the summary, the charts and the report come from the digest (whiten.monitor.ScoreDigest):
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
-    digest = ScoreDigest(scorer.columns, attrs=scorer.attrs(args.fdr), worst=_WORST,
-                         chart_points=args.chart_points)
-    n_rows = 0
-    with atomic_open(out, "w", force=args.force, what="output") as fh:
-        first = True
-        for chunk in _progress(_chunks(args, scorer.columns), "scoring" if adjusted is None else "pass 2/2"):
-            cols = scorer.score_array(chunk.to_numpy())
-            k = len(chunk)
-            if adjusted is not None:
-                adj = adjusted[n_rows:n_rows + k]
-                flag = np.zeros(k, dtype=bool)
-                ok = ~np.isnan(adj)
-                flag[ok] = adj[ok] <= args.fdr
-                items = list(cols.items())
-                cols = {}
-                for key, val in items:
-                    cols[key] = val
-                    if key == "alarm":
-                        cols["p_bh"] = adj
-                        cols["alarm_fdr"] = flag
-            idx = chunk.index
-            frame = pd.DataFrame(cols, index=idx)
-            if args.index_column is None:
-                frame.index.name = "row"
-            write_csv_chunk(frame, fh, header=first)
-            first = False
-            digest.add(cols, index=frame.index)
-            n_rows += k
-
+    digest = score_file(baseline, args.data, out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
+                        index_column=args.index_column, chunksize=args.chunksize, force=args.force,
+                        chart_points=args.chart_points, worst=_WORST, progress=None)
+    at = digest.attrs
+    sensors = list(at["sensors"])
+    n_rows = digest.n_rows
     lines = [
         f"scored {n_rows} rows of {args.data} against {args.baseline} "
-        f"({scorer.p} sensors, {scorer.m} reference rows, phase {scorer.phase!r})",
-        f"limit: {scorer.limit_basis}",
-        f"model accuracy: distances trusted to about {scorer.factor.health.digits_trusted:.0f} significant "
-        f"digits (jitter {scorer.factor.health.jitter:g})",
-        f"alarms at alpha={scorer.alpha:g}: {digest.n_alarm} ({100.0 * digest.n_alarm / max(n_rows, 1):.2f}%); "
-        f"about {scorer.alpha * (n_rows - digest.n_none):.1f} expected by chance if all rows were healthy",
+        f"({len(sensors)} sensors, {at['reference_rows']} reference rows, phase {at['phase']!r})",
+        f"limit: {at['limit_basis']}",
+        f"model accuracy: distances trusted to about {at['digits_trusted']:.0f} significant "
+        f"digits (jitter {at['jitter']:g})",
+        f"alarms at alpha={at['alpha']:g}: {digest.n_alarm} ({100.0 * digest.n_alarm / max(n_rows, 1):.2f}%); "
+        f"about {at['alpha'] * (n_rows - digest.n_none):.1f} expected by chance if all rows were healthy",
     ]
     if args.fdr is not None:
         lines.append(f"flagged by Benjamini-Hochberg at FDR {args.fdr:g} across the file: {digest.n_fdr or 0}")
     if digest.n_partial or digest.n_none:
         lines.append(f"rows with missing readings: {digest.n_partial} scored on the sensors present, "
                      f"{digest.n_none} with no sensor (not scored)")
-    if ignored:
-        lines.append(f"columns not in the model (ignored): {', '.join(ignored)}")
+    if digest.ignored_columns:
+        lines.append(f"columns not in the model (ignored): {', '.join(digest.ignored_columns)}")
     worst = digest.worst_by_p()
     if len(worst):
         lines.append("worst rows (drop contribution: d2 lost without the sensor):")
-        drop_cols = [f"drop:{c}" for c in scorer.columns]
+        drop_cols = [f"drop:{c}" for c in sensors]
         drops = worst[drop_cols].to_numpy(dtype=float)
         for i, lab in enumerate(worst.index):
             row = np.nan_to_num(drops[i], nan=-np.inf)
             top = [j for j in np.argsort(-row, kind="stable")[:3] if np.isfinite(row[j])]
-            top_txt = ", ".join(f"{scorer.columns[j]} {drops[i, j]:.3g}" for j in top)
+            top_txt = ", ".join(f"{sensors[j]} {drops[i, j]:.3g}" for j in top)
             lines.append(f"  row {lab}: d2 {worst['d2'].iloc[i]:.4g}, p {worst['p_value'].iloc[i]:.2g}; "
                          f"top sensors: {top_txt}")
     lines.append(f"scores written to {out}")

@@ -14,7 +14,7 @@ from typing import IO, Iterator
 
 from ..errors import InputError
 
-__all__ = ["check_writable", "atomic_open", "write_text", "write_bytes"]
+__all__ = ["check_writable", "atomic_open", "write_text", "write_bytes", "same_file"]
 
 
 def check_writable(path: str | os.PathLike, *, force: bool = False, what: str = "output") -> Path:
@@ -28,6 +28,16 @@ def check_writable(path: str | os.PathLike, *, force: bool = False, what: str = 
     if not parent.is_dir():
         raise InputError(f"{what} folder {str(parent)!r} does not exist; create it first")
     return p
+
+
+def same_file(a: str | os.PathLike, b: str | os.PathLike) -> bool:
+    """Whether two paths name one file (links and relative spellings included), so an input is never
+    written over."""
+    pa, pb = Path(a), Path(b)
+    if pa.exists() and pb.exists():
+        with contextlib.suppress(OSError):
+            return os.path.samefile(pa, pb)
+    return pa.resolve() == pb.resolve()
 
 
 @contextlib.contextmanager

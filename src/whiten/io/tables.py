@@ -1,10 +1,13 @@
-"""Tables read in chunks with bounded memory: CSV (pandas) and Parquet (pyarrow).
+"""The one reader of data tables: CSV/TSV (pandas) and Parquet (pyarrow), in chunks of bounded memory.
 
-:func:`read_table_chunks` yields pandas DataFrames of float64 columns in the
-requested order. Every problem is an :class:`~whiten.errors.InputError` that
-names the file, and the row and column where there is one: a missing file, an
-empty or header-only file, requested columns that are missing (listing the
-missing and the extra ones), a cell that is not a number.
+:func:`open_table` checks the file, tells its format and reads its header
+once; :meth:`Table.select` checks a choice of columns against the header and
+:meth:`Table.chunks` yields float64 DataFrames in file order.
+:func:`select_columns` words a column mismatch for in-memory frames the same
+way. Every problem is an :class:`~whiten.errors.InputError` that names the
+file, and the line, row and column where there is one: a missing file, an
+empty or header-only file, columns that are missing (listing the missing and
+the extra ones), a cell that is not a number.
 """
 
 from __future__ import annotations
@@ -14,14 +17,15 @@ import sys
 from pathlib import Path
 from typing import Any, Iterable, Iterator, Sequence
 
-import numpy as np
-
 from ..errors import InputError
+from ._cells import float_block
 
-__all__ = ["read_table_chunks", "table_columns", "table_format", "progress", "write_csv_chunk", "DEFAULT_CHUNKSIZE"]
+__all__ = ["open_table", "Table", "select_columns", "read_table_chunks", "table_columns", "table_format",
+           "existing_file", "progress", "write_csv_chunk", "DEFAULT_CHUNKSIZE"]
 
 DEFAULT_CHUNKSIZE = 100_000
 _COMPRESSED = (".gz", ".bz2", ".xz", ".zip", ".zst")
+_SEP = {"csv": ",", "tsv": "\t"}
 
 
 def table_format(path: str | os.PathLike) -> str:
@@ -59,11 +63,44 @@ def existing_file(path: str | os.PathLike, *, missing: str = "data file {path!r}
     return p
 
 
+def open_table(path: str | os.PathLike) -> "Table":
+    """Open a table file: check it exists, tell its format, read its header once.
 
-def table_columns(path: str | os.PathLike) -> list[str]:
-    """Column names of a table file, reading only its header (or Parquet schema)."""
+    Parameters
+    ----------
+    path : str or PathLike
+        ``.csv``/``.txt`` (comma), ``.tsv`` (tab), optionally compressed
+        (``.gz``, ``.bz2``, ``.xz``, ``.zip``, ``.zst``), or ``.parquet``/``.pq``.
+
+    Returns
+    -------
+    Table
+        ``.columns`` is the header; :meth:`Table.select` checks a choice of
+        columns against it and :meth:`Table.chunks` reads the rows.
+
+    Raises
+    ------
+    InputError
+        The file is missing or a folder, its name has no known extension,
+        it is empty (not even a header line) or cannot be read.
+
+    Examples
+    --------
+    >>> import tempfile, os, whiten.io.tables as t
+    >>> d = tempfile.mkdtemp(); f = os.path.join(d, "a.csv")
+    >>> _ = open(f, "w").write("stamp,a,b\\nt0,1,2\\nt1,3,4\\nt2,5,6\\n")
+    >>> tab = t.open_table(f)
+    >>> tab.columns, tab.select(index_column="stamp")
+    (['stamp', 'a', 'b'], ['a', 'b'])
+    >>> [list(c.index) for c in tab.chunks(["b"], chunksize=2, index_column="stamp")]
+    [['t0', 't1'], ['t2']]
+    """
     p = existing_file(path)
     fmt = table_format(p)
+    return Table(p, fmt, _header(p, fmt))
+
+
+def _header(p: Path, fmt: str) -> list[str]:
     if fmt == "parquet":
         pq = _pyarrow_parquet()
         try:
@@ -73,12 +110,181 @@ def table_columns(path: str | os.PathLike) -> list[str]:
     import pandas as pd
 
     try:
-        head = pd.read_csv(p, nrows=0, sep="\t" if fmt == "tsv" else ",")
+        head = pd.read_csv(p, nrows=0, sep=_SEP[fmt], skipinitialspace=True)
     except pd.errors.EmptyDataError:
         raise InputError(f"data file {str(p)!r} is empty (not even a header line)") from None
     except (UnicodeDecodeError, pd.errors.ParserError) as exc:
         raise InputError(f"data file {str(p)!r} could not be read as {fmt.upper()} ({exc})") from None
     return [str(c) for c in head.columns]
+
+
+def select_columns(available: Sequence[Any], wanted: Sequence[Any] | None = None, *, where: str,
+                   index_column: str | None = None, what: str = "the columns asked for",
+                   also: Sequence[str] = (), exact: bool = False) -> list[str]:
+    """Check a choice of columns against the columns there are; the value columns chosen, in order.
+
+    The one place that words a column mismatch, so a file and an in-memory
+    frame say the same thing.
+
+    Parameters
+    ----------
+    available : sequence
+        The columns there are (a file's header, a DataFrame's columns).
+    wanted : sequence of str, optional
+        The value columns asked for, in the order wanted. Default: every
+        available column except ``index_column`` and ``also``.
+    where : str
+        What holds the columns, as the message should name it (e.g.
+        ``"data file 'week32.csv'"``).
+    index_column : str, optional
+        A column that labels rows; it must exist and is not a value column.
+    what : str
+        What the columns are compared with, for the message (e.g. ``"the model"``).
+    also : sequence of str
+        Further columns that must exist, kept out of the default choice (e.g. a
+        weight column).
+    exact : bool
+        Also refuse available columns that were not asked for.
+
+    Returns
+    -------
+    list of str
+
+    Raises
+    ------
+    InputError
+        ``"<where> does not match <what>: missing columns [...], extra columns [...]"``;
+        a missing index or ``also`` column; a column asked for twice; no value column left.
+
+    Examples
+    --------
+    >>> from whiten.io.tables import select_columns
+    >>> select_columns(["t", "a", "b"], ["b", "a"], where="frame", index_column="t")
+    ['b', 'a']
+    """
+    have = [str(c) for c in available]
+    if index_column is not None and index_column not in have:
+        raise InputError(f"{where}: index column {index_column!r} not found; the columns are {have}")
+    skip = set(also) | ({index_column} if index_column is not None else set())
+    if wanted is None:
+        cols = [c for c in have if c not in skip]
+    else:
+        cols = [str(c) for c in wanted]
+        if len(set(cols)) != len(cols):
+            dup = sorted({c for c in cols if cols.count(c) > 1})
+            raise InputError(f"{where}: columns {dup} asked for more than once")
+        missing = [c for c in cols if c not in have]
+        extra = [c for c in have if c not in cols and c not in skip]
+        if missing or (exact and extra):
+            raise InputError(f"{where} does not match {what}: missing columns {missing}, extra columns {extra}")
+    for c in also:
+        if c not in have:
+            raise InputError(f"{where}: column {c!r} not found; the columns are {have}")
+    if not cols:
+        raise InputError(f"{where} has no data columns besides the index column")
+    return cols
+
+
+class Table:
+    """A table file opened by :func:`open_table`: its path, format and header.
+
+    Attributes
+    ----------
+    path : pathlib.Path
+    format : str
+        ``"csv"``, ``"tsv"`` or ``"parquet"``.
+    columns : list of str
+        The header (Parquet: the schema's names), read once.
+    """
+
+    def __init__(self, path: Path, fmt: str, columns: list[str]):
+        self.path = path
+        self.format = fmt
+        self.columns = columns
+
+    @property
+    def where(self) -> str:
+        """How messages name the file: ``"data file '<path>'"``."""
+        return f"data file {str(self.path)!r}"
+
+    def __repr__(self) -> str:
+        return f"Table({str(self.path)!r}, format={self.format!r}, columns={self.columns})"
+
+    def select(self, columns: Sequence[str] | None = None, *, index_column: str | None = None,
+               what: str = "the columns asked for", also: Sequence[str] = ()) -> list[str]:
+        """The value columns chosen, checked against the header (see :func:`select_columns`)."""
+        return select_columns(self.columns, columns, where=self.where, index_column=index_column,
+                              what=what, also=also)
+
+    def chunks(self, columns: Sequence[str], *, chunksize: int | None = None,
+               index_column: str | None = None) -> Iterator[Any]:
+        """The rows of ``columns``, in file order, as float64 DataFrames of at most ``chunksize`` rows.
+
+        Parameters
+        ----------
+        columns : sequence of str
+            Columns returned, in this order (checked against the header).
+        chunksize : int, optional
+            Rows per chunk (default 100000); memory is bounded by one chunk.
+        index_column : str, optional
+            Column whose values (as read, e.g. timestamps as text) label the
+            rows. Without it the label is the 0-based data-row number.
+
+        Yields
+        ------
+        pandas.DataFrame
+            One float64 block per chunk; a missing cell is NaN. No row is
+            dropped or moved.
+
+        Raises
+        ------
+        InputError
+            Columns not in the file; while reading: a header with no data
+            rows, a cell that is not a number (file, line, data row and
+            column named), a file that stops parsing.
+        """
+        chunksize = DEFAULT_CHUNKSIZE if chunksize is None else int(chunksize)
+        if chunksize < 1:
+            raise InputError(f"chunksize: must be a positive integer, got {chunksize}")
+        cols = select_columns(self.columns, columns, where=self.where, index_column=index_column)
+        return self._rows(cols, chunksize, index_column)
+
+    def _rows(self, cols: list[str], chunksize: int, index_column: str | None) -> Iterator[Any]:
+        import pandas as pd
+
+        read = list(dict.fromkeys(cols + ([index_column] if index_column else [])))
+        p, fmt = self.path, self.format
+        if fmt == "parquet":
+            pq = _pyarrow_parquet()
+            try:
+                batches = pq.ParquetFile(str(p)).iter_batches(batch_size=chunksize, columns=read)
+            except Exception as exc:
+                raise InputError(f"{self.where} is not a readable Parquet file ({exc})") from None
+            frames: Iterable = (b.to_pandas() for b in batches)
+        else:
+            # every column as text would be slow; pandas infers, then each column is checked
+            frames = pd.read_csv(p, usecols=read, chunksize=chunksize, sep=_SEP[fmt], skipinitialspace=True)
+        offset = 0
+        try:
+            for df in frames:
+                if len(df) == 0:
+                    continue
+                df.columns = [str(c) for c in df.columns]
+                if index_column is not None:
+                    idx = pd.Index(df[index_column].to_numpy(), name=index_column)
+                else:
+                    idx = pd.RangeIndex(offset, offset + len(df))
+                yield float_block(df, cols, offset, idx, self.where, p, fmt)
+                offset += len(df)
+        except pd.errors.ParserError as exc:
+            raise InputError(f"{self.where}: could not parse near row {offset} ({exc})") from None
+        if offset == 0:
+            raise InputError(f"{self.where} has a header but no data rows")
+
+
+def table_columns(path: str | os.PathLike) -> list[str]:
+    """Column names of a table file, reading only its header (or Parquet schema)."""
+    return open_table(path).columns
 
 
 def _pyarrow_parquet():
@@ -91,78 +297,30 @@ def _pyarrow_parquet():
 
 def _select(path: Path, header: list[str], columns: Sequence[str] | None,
             index_column: str | None, extra_columns: Sequence[str] = ()) -> tuple[list[str], list[str]]:
-    """(value columns, columns to read) after checking they exist."""
-    if index_column is not None and index_column not in header:
-        raise InputError(f"data file {str(path)!r}: index column {index_column!r} not found; "
-                         f"the file has columns {header}")
-    if columns is None:
-        cols = [c for c in header if c != index_column and c not in set(extra_columns)]
-    else:
-        cols = [str(c) for c in columns]
-        if len(set(cols)) != len(cols):
-            dup = sorted({c for c in cols if cols.count(c) > 1})
-            raise InputError(f"columns: {dup} requested more than once")
-        missing = [c for c in cols if c not in header]
-        if missing:
-            extra = [c for c in header if c not in cols and c != index_column and c not in set(extra_columns)]
-            raise InputError(f"data file {str(path)!r}: missing column(s) {missing}; "
-                             f"columns in the file not requested: {extra}")
-    for c in extra_columns:
-        if c not in header:
-            raise InputError(f"data file {str(path)!r}: column {c!r} not found; the file has columns {header}")
-    if not cols:
-        raise InputError(f"data file {str(path)!r} has no data columns besides the index column")
-    read = list(dict.fromkeys(cols + list(extra_columns) + ([index_column] if index_column else [])))
-    return cols, read
-
-
-def _numeric_frame(df, cols: Sequence[str], offset: int, path: Path):
-    """float64 columns in ``cols`` order; the first non-numeric cell is named."""
-    import pandas as pd
-
-    out = {}
-    for c in cols:
-        s = df[c]
-        if s.dtype.kind in "iuf":
-            out[c] = s.to_numpy(dtype=np.float64, na_value=np.nan)
-            continue
-        if s.dtype.kind == "b":
-            out[c] = s.to_numpy(dtype=np.float64)
-            continue
-        coerced = pd.to_numeric(s, errors="coerce")
-        bad = coerced.isna().to_numpy() & ~pd.isna(s).to_numpy()
-        if bad.any():
-            k = int(np.flatnonzero(bad)[0])
-            row = offset + k
-            raise InputError(
-                f"data file {str(path)!r}: column {c!r} is not numeric: row {row} (0-based data row) "
-                f"holds {s.iloc[k]!r}. Fix the cell, or leave the column out with --columns / columns=[...]")
-        out[c] = coerced.to_numpy(dtype=np.float64, na_value=np.nan)
-    return pd.DataFrame(out, index=df.index, columns=list(cols))
+    """(value columns, columns to read): kept for callers not yet on :meth:`Table.select`."""
+    cols = select_columns(header, columns, where=f"data file {str(path)!r}", index_column=index_column,
+                          also=extra_columns)
+    return cols, list(dict.fromkeys(cols + list(extra_columns) + ([index_column] if index_column else [])))
 
 
 def read_table_chunks(path: str | os.PathLike, columns: Sequence[str] | None = None,
                       chunksize: int | None = None, index_column: str | None = None, *,
                       extra_columns: Sequence[str] = ()) -> Iterator[Any]:
-    """Read a CSV/TSV or Parquet table in chunks of float64 columns.
+    """Read a CSV/TSV or Parquet table in chunks of float64 columns (:func:`open_table` in one call).
 
     Parameters
     ----------
     path : str or PathLike
-        ``.csv``/``.txt`` (comma), ``.tsv`` (tab), optionally compressed
-        (``.gz``, ``.bz2``, ``.xz``, ``.zip``), or ``.parquet``/``.pq``.
+        See :func:`open_table`.
     columns : sequence of str, optional
         Columns to return, in this order (default: every column except the
         index column and ``extra_columns``).
     chunksize : int, optional
         Rows per chunk (default 100000). Memory is bounded by one chunk.
     index_column : str, optional
-        Column that becomes the index of every chunk (kept as read, e.g.
-        timestamps as strings). Without it the index is the 0-based position
-        of the row in the file.
+        Column that labels the rows (see :meth:`Table.chunks`).
     extra_columns : sequence of str
-        Further columns read and returned as float64 after ``columns`` (e.g. a
-        weight column).
+        Further columns returned as float64 after ``columns`` (e.g. a weight column).
 
     Yields
     ------
@@ -172,9 +330,7 @@ def read_table_chunks(path: str | os.PathLike, columns: Sequence[str] | None = N
     Raises
     ------
     InputError
-        Missing file, unknown extension, empty or header-only file, missing
-        columns (the message lists the missing and the extra ones), a cell
-        that is not a number (row and column named).
+        As :func:`open_table`, :meth:`Table.select` and :meth:`Table.chunks`.
 
     Examples
     --------
@@ -184,52 +340,10 @@ def read_table_chunks(path: str | os.PathLike, columns: Sequence[str] | None = N
     >>> [len(c) for c in t.read_table_chunks(f, chunksize=2)]
     [2, 1]
     """
-    p = existing_file(path)
-    fmt = table_format(p)
-    chunksize = DEFAULT_CHUNKSIZE if chunksize is None else int(chunksize)
-    if chunksize < 1:
-        raise InputError(f"chunksize: must be a positive integer, got {chunksize}")
-    header = table_columns(p)
-    cols, read = _select(p, header, columns, index_column, extra_columns)
-    out_cols = list(dict.fromkeys(cols + list(extra_columns)))
-    return _iter_chunks(p, fmt, read, out_cols, chunksize, index_column)
-
-
-def _iter_chunks(p: Path, fmt: str, read: list[str], out_cols: list[str], chunksize: int,
-                 index_column: str | None) -> Iterator[Any]:
-    import pandas as pd
-
-    offset = 0
-    if fmt == "parquet":
-        pq = _pyarrow_parquet()
-        try:
-            pf = pq.ParquetFile(str(p))
-            batches = pf.iter_batches(batch_size=chunksize, columns=read)
-        except Exception as exc:
-            raise InputError(f"data file {str(p)!r} is not a readable Parquet file ({exc})") from None
-        frames: Iterable = (b.to_pandas() for b in batches)
-    else:
-        # every column as text would be slow; let pandas infer, then check per column
-        frames = pd.read_csv(p, usecols=read, chunksize=chunksize, sep="\t" if fmt == "tsv" else ",",
-                             skipinitialspace=True)
-    got_rows = False
-    try:
-        for df in frames:
-            if len(df) == 0:
-                continue
-            got_rows = True
-            df.columns = [str(c) for c in df.columns]
-            if index_column is not None:
-                idx = pd.Index(df[index_column].to_numpy(), name=index_column)
-            else:
-                idx = pd.RangeIndex(offset, offset + len(df))
-            df = df.set_axis(idx, axis=0)
-            yield _numeric_frame(df, out_cols, offset, p)
-            offset += len(df)
-    except pd.errors.ParserError as exc:
-        raise InputError(f"data file {str(p)!r}: could not parse near row {offset} ({exc})") from None
-    if not got_rows:
-        raise InputError(f"data file {str(p)!r} has a header but no data rows")
+    table = open_table(path)
+    cols = table.select(columns, index_column=index_column, also=extra_columns)
+    return table.chunks(list(dict.fromkeys(cols + list(extra_columns))), chunksize=chunksize,
+                        index_column=index_column)
 
 
 def progress(iterable: Iterable, *, desc: str = "chunks", total: int | None = None,

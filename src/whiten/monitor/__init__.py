@@ -1,7 +1,7 @@
 """Monitoring: score sensor rows against a baseline, explain alarms, chart them.
 
-:func:`score` is the entry point; :mod:`~whiten.monitor.limits` holds the
-exact laws of the squared distance, :mod:`~whiten.monitor.fdr` batch control,
+:func:`score` is the entry point and :func:`score_file` its streaming twin
+for files; :mod:`~whiten.monitor.limits` holds the exact laws of the squared distance, :mod:`~whiten.monitor.fdr` batch control,
 :mod:`~whiten.monitor.charts` the pictures (matplotlib, imported lazily).
 """
 
@@ -10,9 +10,10 @@ from .digest import ScoreDigest
 from .fdr import bh_adjust, bh_threshold
 from .limits import PHASES, t2_law, t2_limit, t2_pvalue
 from .score import KINDS, Scorer, column_name, score
+from .stream import score_file
 
 __all__ = [
-    "score", "Scorer", "ScoreDigest", "KINDS", "column_name",
+    "score", "score_file", "Scorer", "ScoreDigest", "KINDS", "column_name",
     "PHASES", "t2_law", "t2_limit", "t2_pvalue",
     "bh_adjust", "bh_threshold",
     "chain_terms", "drop_terms",

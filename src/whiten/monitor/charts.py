@@ -21,12 +21,13 @@ from __future__ import annotations
 import io
 import os
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Any
 
 import numpy as np
 
 from ..errors import InputError
 from ..io.atomic import check_writable, write_bytes
+from .digest import need_score_columns as _need
 
 __all__ = ["distance_chart", "qq_chart", "contribution_chart"]
 
@@ -62,13 +63,6 @@ def _save(fig, path: str | os.PathLike, force: bool) -> Path:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", facecolor="white")
     return write_bytes(path, buf.getvalue(), force=force, what="chart")
-
-
-def _need(scores: Any, cols: Sequence[str]) -> None:
-    have = set(getattr(scores, "columns", []))
-    gone = [c for c in cols if c not in have]
-    if gone:
-        raise InputError(f"scores: expected the DataFrame returned by whiten.monitor.score; missing columns {gone}")
 
 
 def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, title: str | None = None,

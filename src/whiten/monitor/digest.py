@@ -28,6 +28,14 @@ __all__ = ["ScoreDigest"]
 _NEED = ("d2", "p_value", "limit", "alarm")
 
 
+def need_score_columns(scores: Any, columns: Sequence[str]) -> None:
+    """Refuse anything but a score table (from :func:`whiten.monitor.score`) holding ``columns``."""
+    have = set(getattr(scores, "columns", []))
+    gone = [c for c in columns if c not in have]
+    if gone or not hasattr(scores, "attrs"):
+        raise InputError(f"scores: expected the DataFrame returned by whiten.monitor.score; missing columns {gone}")
+
+
 class ScoreDigest:
     """Bounded-memory record of a scoring run, fed one chunk of score columns at a time.
 
@@ -77,15 +85,15 @@ class ScoreDigest:
         self._by_p = None  # small DataFrames of whole rows
         self._by_d2 = None
         self.index_name: str | None = None
+        # what whiten.monitor.score_file read: the file, and its columns not in the model
+        self.source: str | None = None
+        self.ignored_columns: list[str] = []
 
     # ------------------------------------------------------------------ feed
     @classmethod
     def from_frame(cls, scores: Any, *, worst: int = 5, chart_points: int | None = None) -> "ScoreDigest":
         """The digest of an in-memory score table (every row on the chart unless ``chart_points``)."""
-        cols = set(getattr(scores, "columns", []))
-        gone = [c for c in _NEED if c not in cols]
-        if gone or not hasattr(scores, "attrs"):
-            raise InputError(f"scores: expected the DataFrame returned by whiten.monitor.score; missing columns {gone}")
+        need_score_columns(scores, _NEED)
         attrs = dict(scores.attrs)
         sensors = attrs.get("sensors") or [str(c)[5:] for c in scores.columns if str(c).startswith("drop:")]
         dig = cls(sensors, attrs=attrs, worst=worst, chart_points=chart_points or max(1, len(scores)))

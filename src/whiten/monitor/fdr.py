@@ -16,7 +16,7 @@ import numpy as np
 
 from .limits import check_alpha
 
-__all__ = ["bh_adjust", "bh_threshold"]
+__all__ = ["bh_adjust", "bh_threshold", "add_fdr"]
 
 
 def bh_adjust(p_values: Any) -> np.ndarray:
@@ -70,3 +70,24 @@ def bh_threshold(p_values: Any, q: float) -> float:
         return -np.inf
     hits = np.flatnonzero(p <= q * np.arange(1, n + 1) / n)
     return float(p[hits[-1]]) if hits.size else -np.inf
+
+
+def add_fdr(cols: dict, q: float, adjusted: Any = None) -> None:
+    """Insert ``p_bh`` and ``alarm_fdr`` (after ``alarm``) into a dict of score columns.
+
+    ``adjusted`` gives the adjusted p-values of these rows when they were
+    computed over a larger batch (the whole file, in the streaming scorer);
+    by default they are adjusted across ``cols`` itself.
+    """
+    q = check_alpha(q, "fdr")
+    adj = bh_adjust(cols["p_value"]) if adjusted is None else np.asarray(adjusted, dtype=float)
+    flag = np.zeros(adj.shape, dtype=bool)
+    ok = ~np.isnan(adj)
+    flag[ok] = adj[ok] <= q
+    items = list(cols.items())
+    cols.clear()
+    for k, v in items:
+        cols[k] = v
+        if k == "alarm":
+            cols["p_bh"] = adj
+            cols["alarm_fdr"] = flag

@@ -6,7 +6,7 @@ import warnings
 from typing import Any
 
 from ...errors import InputError
-from ...monitor.score import add_fdr
+from ...monitor.fdr import add_fdr
 from ...monitor.score import score as score_in_memory
 from .common import is_dask_frame, require_dask
 

@@ -1,0 +1,155 @@
+"""Score a table file too large for memory: read, score, write and forget, one chunk at a time.
+
+:func:`score_file` is :func:`whiten.monitor.score` for files: the same rows
+give the same score columns, written to a CSV file instead of returned, and
+what a summary, a chart or a report needs is kept in a bounded
+:class:`~whiten.monitor.ScoreDigest`.
+"""
+
+from __future__ import annotations
+
+import os
+from typing import Any, Sequence
+
+import numpy as np
+
+from ..errors import InputError
+from ..io.atomic import atomic_open, check_writable, same_file
+from ..io.tables import Table, open_table, write_csv_chunk
+from ..io.tables import progress as _progress
+from .digest import ScoreDigest
+from .fdr import add_fdr, bh_adjust
+from .limits import check_alpha
+from .scorer import Scorer
+
+__all__ = ["score_file"]
+
+
+def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path: str | os.PathLike, *,
+               alpha: float = 0.001, missing: str = "marginalize", phase: str = "new",
+               fdr: float | None = None, order: Sequence[str] | None = None,
+               index_column: str | None = None, chunksize: int | None = None, force: bool = False,
+               chart_points: int = 20_000, worst: int = 5, progress: bool | None = False) -> ScoreDigest:
+    """Score every row of a table file against a baseline and write the score table as CSV.
+
+    Parameters
+    ----------
+    baseline : Baseline or Gaussian
+        As for :func:`whiten.monitor.score`.
+    data_path : str, PathLike or whiten.io.tables.Table
+        CSV/TSV (maybe compressed) or Parquet file of sensor rows; columns are
+        matched to the baseline's sensors by name, other columns are ignored.
+    output_path : str or PathLike
+        Where the score table goes (CSV). Written to a temporary sibling and
+        renamed into place when complete; never the input file.
+    alpha, missing, phase, fdr, order
+        As for :func:`whiten.monitor.score`. With ``fdr`` the file is read
+        twice: the first pass collects every p-value, so the Benjamini-Hochberg
+        step sees the whole file, as :func:`~whiten.monitor.score` sees its batch.
+    index_column : str, optional
+        Column that labels the rows; it is the output's first column. Without
+        it the first column is ``row``, the 0-based data-row number.
+    chunksize : int, optional
+        Rows read, scored and written at a time (default 100000).
+    force : bool
+        Replace ``output_path`` if it exists.
+    chart_points, worst : int
+        Passed to the :class:`~whiten.monitor.ScoreDigest` returned.
+    progress : bool or None
+        A progress bar on stderr: ``None`` when stderr is a terminal.
+
+    Returns
+    -------
+    ScoreDigest
+        Counts, the worst rows whole and the control-chart trace; also
+        ``source`` (the file read) and ``ignored_columns`` (its columns not in
+        the model, the index column aside).
+
+    Raises
+    ------
+    InputError
+        As :func:`whiten.monitor.score` and :func:`whiten.io.tables.open_table`;
+        an existing output without ``force``; an output naming the input; a
+        non-finite value (or NaN with ``missing="error"``) with its row and column.
+
+    Notes
+    -----
+    Memory is one chunk of rows and its scores, plus the digest (bounded by
+    ``chart_points`` and ``worst``); with ``fdr``, one float per row for the
+    adjusted p-values.
+
+    Examples
+    --------
+    >>> import os, tempfile, numpy as np, pandas as pd, whiten
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], names=["a", "b"])
+    >>> d = tempfile.mkdtemp(); src = os.path.join(d, "rows.csv")
+    >>> pd.DataFrame({"a": [0.1, 4.0, -0.2], "b": [0.0, -4.0, 0.3]}).to_csv(src, index=False)
+    >>> dig = whiten.monitor.score_file(g, src, os.path.join(d, "scores.csv"), phase="known", chunksize=2)
+    >>> dig.n_rows, dig.n_alarm, list(pd.read_csv(os.path.join(d, "scores.csv")).columns[:3])
+    (3, 1, ['row', 'd2', 'p_value'])
+    """
+    import pandas as pd
+
+    scorer = Scorer(baseline, alpha=alpha, missing=missing, phase=phase, order=order)
+    if fdr is not None:
+        fdr = check_alpha(fdr, "fdr")
+    table = data_path if isinstance(data_path, Table) else open_table(data_path)
+    out = check_writable(output_path, force=force, what="output")
+    if same_file(out, table.path):
+        raise InputError(f"output: {str(out)!r} names the data file being read; write the scores elsewhere")
+    cols = table.select(scorer.columns, index_column=index_column, what="the model")
+    digest = ScoreDigest(scorer.columns, attrs=scorer.attrs(fdr), worst=worst, chart_points=chart_points)
+    digest.source = str(table.path)
+    digest.ignored_columns = [c for c in table.columns if c not in scorer.columns and c != index_column]
+
+    def passes(desc: str):
+        chunks = table.chunks(cols, chunksize=chunksize, index_column=index_column)
+        return _progress(chunks, desc=desc, unit="chunk", enabled=progress)
+
+    adjusted = None
+    if fdr is not None:
+        # pass 1: every p-value, so the step-up threshold sees the whole file
+        ps = [scorer.score_array(_values(ch, scorer, table, k))["p_value"] for k, ch in _numbered(passes("pass 1/2"))]
+        adjusted = bh_adjust(np.concatenate(ps)) if ps else np.empty(0)
+    n_rows = 0
+    with atomic_open(out, "w", force=force, what="output") as fh:
+        for k, chunk in _numbered(passes("scoring" if adjusted is None else "pass 2/2")):
+            scores = scorer.score_array(_values(chunk, scorer, table, k))
+            m = len(chunk)
+            if adjusted is not None and fdr is not None:
+                if n_rows + m > adjusted.shape[0]:
+                    raise InputError(f"{table.where} changed while it was read twice for fdr; score it again")
+                add_fdr(scores, fdr, adjusted[n_rows:n_rows + m])
+            frame = pd.DataFrame(scores, index=chunk.index)
+            if index_column is None:
+                frame.index.name = "row"
+            write_csv_chunk(frame, fh, header=n_rows == 0)
+            digest.add(scores, index=frame.index)
+            n_rows += m
+        if adjusted is not None and n_rows != adjusted.shape[0]:
+            raise InputError(f"{table.where} changed while it was read twice for fdr; score it again")
+    return digest
+
+
+def _numbered(chunks):
+    """(first data row, chunk) pairs."""
+    first = 0
+    for ch in chunks:
+        yield first, ch
+        first += len(ch)
+
+
+def _values(chunk: Any, scorer: Scorer, table: Table, first: int) -> np.ndarray:
+    """The chunk's float64 block, refused when a value is infinite (or missing, with missing='error')."""
+    x = chunk.to_numpy()
+    # one cheap pass first: the sum is finite exactly when every entry is (barring overflow)
+    if x.size and not np.isfinite(np.add.reduce(x, axis=None)):
+        bad = np.isinf(x) if scorer.missing == "marginalize" else ~np.isfinite(x)
+        if bad.any():
+            r, c = (int(v) for v in np.argwhere(bad)[0])
+            label = f", index {chunk.index[r]!r}" if chunk.index.name is not None else ""
+            hint = "" if scorer.missing == "marginalize" else " (missing values are not allowed with missing='error')"
+            raise InputError(f"{table.where}: row {first + r} (0-based data row{label}), column "
+                             f"{scorer.columns[c]!r} is {x[r, c]}{hint}; every value must be a finite number")
+    return x
+
