@@ -123,7 +123,7 @@ def test_dataframe_columns_matched_by_name_and_index_kept(model):
     out = g.logpdf(shuffled)
     assert isinstance(out, pd.Series) and out.index.equals(df.index)
     assert np.allclose(out.to_numpy(), g.logpdf(x))
-    with pytest.raises(InputError, match=r"missing \['e'\], extra \['z'\]"):
+    with pytest.raises(InputError, match=r"missing columns \['e'\], extra columns \['z'\]"):
         g.logpdf(df.rename(columns={"e": "z"}))
 
 

@@ -15,6 +15,7 @@ from .errors import InputError
 
 __all__ = [
     "as_float_array",
+    "select_columns",
     "as_rows",
     "as_square",
     "check_names",
@@ -188,14 +189,11 @@ def check_names(given: Sequence[str] | None, expected: Sequence[str] | None, *, 
     expected = list(expected)
     if given == expected:
         return
-    missing = [c for c in expected if c not in given]
-    extra = [c for c in given if c not in expected]
-    if not missing and not extra:
-        raise InputError(
-            f"{name}: columns are in a different order than the model's; expected {expected}. "
-            "Reorder with data[model_columns]"
-        )
-    raise InputError(f"{name}: column mismatch with the model: missing {missing}, extra {extra}")
+    select_columns(given, expected, where=name, what="the model", exact=True)
+    raise InputError(
+        f"{name}: columns are in a different order than the model's; expected {expected}. "
+        "Reorder with data[model_columns]"
+    )
 
 
 def as_rows(
@@ -221,10 +219,7 @@ def as_rows(
     if _is_frame(x) and names is not None:
         cols = [str(c) for c in x.columns]
         if cols != list(names):
-            missing = [c for c in names if c not in cols]
-            if missing:
-                extra = [c for c in cols if c not in names]
-                raise InputError(f"{name}: column mismatch with the model: missing {missing}, extra {extra}")
+            select_columns(cols, names, where=name, what="the model")
             x = x[[c for c in x.columns if str(c) in set(names)]]
             x = x[[c for c in x.columns]]
             order = {c: i for i, c in enumerate(names)}
@@ -297,3 +292,70 @@ def as_square(
         )
     # exactly symmetric, so the transpose is the same matrix, in the Fortran order LAPACK wants
     return sym.T, names
+
+
+def select_columns(available: Sequence[Any], wanted: Sequence[Any] | None = None, *, where: str,
+                   index_column: str | None = None, what: str = "the columns asked for",
+                   also: Sequence[str] = (), exact: bool = False) -> list[str]:
+    """Check a choice of columns against the columns there are; the value columns chosen, in order.
+
+    The one place that words a column mismatch, so a file and an in-memory
+    frame say the same thing.
+
+    Parameters
+    ----------
+    available : sequence
+        The columns there are (a file's header, a DataFrame's columns).
+    wanted : sequence of str, optional
+        The value columns asked for, in the order wanted. Default: every
+        available column except ``index_column`` and ``also``.
+    where : str
+        What holds the columns, as the message should name it (e.g.
+        ``"data file 'week32.csv'"``).
+    index_column : str, optional
+        A column that labels rows; it must exist and is not a value column.
+    what : str
+        What the columns are compared with, for the message (e.g. ``"the model"``).
+    also : sequence of str
+        Further columns that must exist, kept out of the default choice (e.g. a
+        weight column).
+    exact : bool
+        Also refuse available columns that were not asked for.
+
+    Returns
+    -------
+    list of str
+
+    Raises
+    ------
+    InputError
+        ``"<where> does not match <what>: missing columns [...], extra columns [...]"``;
+        a missing index or ``also`` column; a column asked for twice; no value column left.
+
+    Examples
+    --------
+    >>> from whiten.io.tables import select_columns  # re-exported there, beside the reader
+    >>> select_columns(["t", "a", "b"], ["b", "a"], where="frame", index_column="t")
+    ['b', 'a']
+    """
+    have = [str(c) for c in available]
+    if index_column is not None and index_column not in have:
+        raise InputError(f"{where}: index column {index_column!r} not found; the columns are {have}")
+    skip = set(also) | ({index_column} if index_column is not None else set())
+    if wanted is None:
+        cols = [c for c in have if c not in skip]
+    else:
+        cols = [str(c) for c in wanted]
+        if len(set(cols)) != len(cols):
+            dup = sorted({c for c in cols if cols.count(c) > 1})
+            raise InputError(f"{where}: columns {dup} asked for more than once")
+        missing = [c for c in cols if c not in have]
+        extra = [c for c in have if c not in cols and c not in skip]
+        if missing or (exact and extra):
+            raise InputError(f"{where} does not match {what}: missing columns {missing}, extra columns {extra}")
+    for c in also:
+        if c not in have:
+            raise InputError(f"{where}: column {c!r} not found; the columns are {have}")
+    if not cols:
+        raise InputError(f"{where} has no data columns besides the index column")
+    return cols

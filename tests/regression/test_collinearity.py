@@ -150,7 +150,7 @@ def test_bad_inputs_are_named():
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 4], error_cov=np.diag([1.0, -1.0, 1.0, 1.0]))
     with pytest.raises(InputError, match="interval: choose None, 'confidence' or 'prediction'"):
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).predict([1.0, 2.0], interval="band")
-    with pytest.raises(InputError, match=r"column mismatch with the model: missing \[.b.\]"):
+    with pytest.raises(InputError, match=r"does not match the model: missing columns \[.b.\]"):
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).predict(pd.DataFrame({"a": [1.0]}))
     with pytest.raises(InputError, match="reserves for the intercept"):
         whiten.fit_linear(pd.DataFrame({"(intercept)": [1.0, 2, 3], "b": [1.0, 0, 2]}), [1, 2, 3])

@@ -16,6 +16,7 @@ import numpy as np
 from .. import _validate
 from .._settings import current
 from ..errors import InputError
+from ..io.tables import open_table, progress, select_columns
 
 __all__ = ["Source", "array_column_names", "is_frame"]
 
@@ -65,23 +66,16 @@ class Source:
 
     # -- kinds
     def _init_path(self, path: str, columns, index_column) -> None:
-        from pathlib import Path
-
-        from ..io.tables import _select, read_table_chunks, table_columns
-
         extra = [self.weight_column] if self.weight_column else []
-        # validate now (missing file, columns) so errors come before any work
-        header = table_columns(path)
-        cols, _ = _select(Path(path), header, columns, index_column, extra)
+        # header read and columns checked now (missing file, columns), so errors come before any work
+        table = open_table(path)
+        cols = table.select(columns, index_column=index_column, also=extra)
         self.names = cols
         self.reiterable = True
-        self.label = f"data file {path!r}"
+        self.label = table.where
 
         def frames():
-            from ..io.tables import progress
-
-            chunks = read_table_chunks(path, columns if columns is not None else cols, self.chunksize,
-                                       index_column, extra_columns=extra)
+            chunks = table.chunks(cols + extra, chunksize=self.chunksize, index_column=index_column)
             return progress(chunks, desc="reading", enabled=self.progress)
 
         self._frames = frames
@@ -96,16 +90,9 @@ class Source:
         wcol = self.weight_column
         if wcol is not None and wcol not in names_all:
             raise InputError(f"weights: column {wcol!r} not found in the DataFrame; columns are {names_all}")
-        if columns is None:
-            cols = [c for c, s in zip(df.columns, names_all) if s != wcol]
-        else:
-            want = [str(c) for c in columns]
-            missing = [c for c in want if c not in names_all]
-            if missing:
-                extra = [c for c in names_all if c not in want and c != wcol]
-                raise InputError(f"columns: missing {missing} in the DataFrame; not selected: {extra}")
-            lookup = {s: c for c, s in zip(df.columns, names_all)}
-            cols = [lookup[c] for c in want]
+        want = select_columns(names_all, columns, where="the DataFrame", also=[wcol] if wcol else [])
+        lookup = {s: c for c, s in zip(df.columns, names_all)}
+        cols = [lookup[c] for c in want]
         values, names, index = _validate.as_float_array(df[cols], name="data", ndim=(2,), allow_nan=True)
         self.names = names
         self._array = values
@@ -170,8 +157,6 @@ class Source:
                 if self._consumed:
                     raise InputError("data: the chunk iterator was already consumed; pass a list to read it twice")
                 self._consumed = True
-            from ..io.tables import progress
-
             return progress(self._chunks_src, desc="chunks", enabled=self.progress)
 
         self._frames = frames
@@ -214,10 +199,8 @@ class Source:
             if self._index_column is not None and self._index_column in chunk.columns:
                 chunk = chunk.set_index(self._index_column)
             cols = [str(c) for c in chunk.columns]
-            missing = [c for c in self.names if c not in cols]
-            if missing:
-                extra = [c for c in cols if c not in self.names and c != self.weight_column]
-                raise InputError(f"data ({where}): missing column(s) {missing}; extra: {extra}")
+            select_columns(cols, self.names, where=f"data ({where})", what="the first chunk's columns",
+                           also=[self.weight_column] if self.weight_column else [])
             lookup = {str(c): c for c in chunk.columns}
             vals, _, index = _validate.as_float_array(chunk[[lookup[c] for c in self.names]],
                                                       name=f"data ({where})", ndim=(2,), allow_nan=True)

@@ -17,6 +17,7 @@ import sys
 from pathlib import Path
 from typing import Any, Iterable, Iterator, Sequence
 
+from .._validate import select_columns
 from ..errors import InputError
 from ._cells import float_block
 
@@ -116,73 +117,6 @@ def _header(p: Path, fmt: str) -> list[str]:
     except (UnicodeDecodeError, pd.errors.ParserError) as exc:
         raise InputError(f"data file {str(p)!r} could not be read as {fmt.upper()} ({exc})") from None
     return [str(c) for c in head.columns]
-
-
-def select_columns(available: Sequence[Any], wanted: Sequence[Any] | None = None, *, where: str,
-                   index_column: str | None = None, what: str = "the columns asked for",
-                   also: Sequence[str] = (), exact: bool = False) -> list[str]:
-    """Check a choice of columns against the columns there are; the value columns chosen, in order.
-
-    The one place that words a column mismatch, so a file and an in-memory
-    frame say the same thing.
-
-    Parameters
-    ----------
-    available : sequence
-        The columns there are (a file's header, a DataFrame's columns).
-    wanted : sequence of str, optional
-        The value columns asked for, in the order wanted. Default: every
-        available column except ``index_column`` and ``also``.
-    where : str
-        What holds the columns, as the message should name it (e.g.
-        ``"data file 'week32.csv'"``).
-    index_column : str, optional
-        A column that labels rows; it must exist and is not a value column.
-    what : str
-        What the columns are compared with, for the message (e.g. ``"the model"``).
-    also : sequence of str
-        Further columns that must exist, kept out of the default choice (e.g. a
-        weight column).
-    exact : bool
-        Also refuse available columns that were not asked for.
-
-    Returns
-    -------
-    list of str
-
-    Raises
-    ------
-    InputError
-        ``"<where> does not match <what>: missing columns [...], extra columns [...]"``;
-        a missing index or ``also`` column; a column asked for twice; no value column left.
-
-    Examples
-    --------
-    >>> from whiten.io.tables import select_columns
-    >>> select_columns(["t", "a", "b"], ["b", "a"], where="frame", index_column="t")
-    ['b', 'a']
-    """
-    have = [str(c) for c in available]
-    if index_column is not None and index_column not in have:
-        raise InputError(f"{where}: index column {index_column!r} not found; the columns are {have}")
-    skip = set(also) | ({index_column} if index_column is not None else set())
-    if wanted is None:
-        cols = [c for c in have if c not in skip]
-    else:
-        cols = [str(c) for c in wanted]
-        if len(set(cols)) != len(cols):
-            dup = sorted({c for c in cols if cols.count(c) > 1})
-            raise InputError(f"{where}: columns {dup} asked for more than once")
-        missing = [c for c in cols if c not in have]
-        extra = [c for c in have if c not in cols and c not in skip]
-        if missing or (exact and extra):
-            raise InputError(f"{where} does not match {what}: missing columns {missing}, extra columns {extra}")
-    for c in also:
-        if c not in have:
-            raise InputError(f"{where}: column {c!r} not found; the columns are {have}")
-    if not cols:
-        raise InputError(f"{where} has no data columns besides the index column")
-    return cols
 
 
 class Table:
@@ -293,14 +227,6 @@ def _pyarrow_parquet():
     except ImportError:  # pragma: no cover - pyarrow is installed in the test env
         raise InputError("reading Parquet files needs pyarrow: pip install 'whiten[parquet]'") from None
     return pq
-
-
-def _select(path: Path, header: list[str], columns: Sequence[str] | None,
-            index_column: str | None, extra_columns: Sequence[str] = ()) -> tuple[list[str], list[str]]:
-    """(value columns, columns to read): kept for callers not yet on :meth:`Table.select`."""
-    cols = select_columns(header, columns, where=f"data file {str(path)!r}", index_column=index_column,
-                          also=extra_columns)
-    return cols, list(dict.fromkeys(cols + list(extra_columns) + ([index_column] if index_column else [])))
 
 
 def read_table_chunks(path: str | os.PathLike, columns: Sequence[str] | None = None,

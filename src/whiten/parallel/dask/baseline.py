@@ -17,6 +17,7 @@ from ..._validate import as_float_array
 from ...baseline import Baseline, array_column_names, clean_block, health_from_factor
 from ...baseline.cleaning import MISSING_POLICIES, dropped_rows_warning
 from ...errors import InputError
+from ...io.tables import select_columns
 from ...estimate.sample import METHODS, ScatterFit, _gram_factor, _no_rows, check_rows, covariance_factor
 from ...estimate.streaming import Block, accumulate, merge
 from .common import is_dask_frame, require_dask, tree_reduce
@@ -36,16 +37,9 @@ def _blocks(data: Any, columns: Sequence[str] | None, weight_column: str | None 
         if weight_column is not None and weight_column not in lookup:
             raise InputError(f"weights: column {weight_column!r} not found in the dask DataFrame; columns are "
                              f"{names_all}")
-        if columns is None:
-            cols = [c for c in data.columns if str(c) != weight_column]
-            names = [str(c) for c in cols]
-        else:
-            names = [str(c) for c in columns]
-            missing = [c for c in names if c not in names_all]
-            if missing:
-                extra = [c for c in names_all if c not in names]
-                raise InputError(f"columns: missing {missing} in the dask DataFrame; not selected: {extra}")
-            cols = [lookup[c] for c in names]
+        names = select_columns(names_all, columns, where="the dask DataFrame",
+                               also=[weight_column] if weight_column is not None else [])
+        cols = [lookup[c] for c in names]
         if weight_column is not None and weight_column in names:
             raise InputError(f"weights: column {weight_column!r} is also one of the fitted columns")
         take = cols + ([lookup[weight_column]] if weight_column is not None else [])
