@@ -181,7 +181,7 @@ def test_compensated_and_longdouble_residuals_agree_with_exact_arithmetic():
     """Residual kernels against exact rational arithmetic (Python fractions, standard library)."""
     from fractions import Fraction
 
-    from whiten.regression import _extended
+    from whiten.linalg import compensated as _extended
 
     rng = np.random.default_rng(0)
     a = rng.standard_normal((7, 4)) * 1e3
@@ -223,7 +223,7 @@ def test_spread_out_near_dependence_found_by_singular_values():
 def test_residual_arithmetic_without_wider_longdouble(monkeypatch):
     """Where numpy.longdouble is plain double (Windows, ARM64 macOS), "longdouble" requests fall
     back to compensated arithmetic rather than silently losing the extra digits."""
-    from whiten.regression import _extended
+    from whiten.linalg import compensated as _extended
 
     monkeypatch.setattr(_extended, "LONGDOUBLE_IS_WIDER", False)
     assert _extended.extended_kind("longdouble") == "compensated"

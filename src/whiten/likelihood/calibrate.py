@@ -22,6 +22,7 @@ from .._warn import warn
 from .._records import fields_to_dict
 from ..errors import ConditioningWarning, InputError, RankDeficiencyWarning
 from ..linalg.factor import Factor, FactorHealth
+from ..linalg.qr import pivoted_qr_r, tri_solve
 from .loglik import as_covariance
 
 __all__ = ["calibrate", "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval"]
@@ -356,7 +357,6 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     True
     """
     from scipy import stats
-    from scipy.linalg import qr, solve_triangular
 
     opts = _check_options(options)
     if not callable(model):
@@ -398,7 +398,7 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     theta, chi2, res = _solve(prob, th0)
 
     jw = _whitened_jac(prob, theta, n, k, None) if prob.jac is not None else _central_jac(prob, theta, n)
-    q, r, perm = qr(jw, mode="economic", pivoting=True)
+    r, perm = pivoted_qr_r(jw)
     rd = np.abs(np.diag(r))
     tol_rank = max(n, k) * _EPS * (rd[0] if rd.size else 0.0)
     rank = int(np.sum(rd > tol_rank))
@@ -417,7 +417,7 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
              f"in theta_cov; threshold {current().digits_warn:g}). Rescale or reparametrize the model")
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         if rank == k:
-            rinv = solve_triangular(r, np.eye(k), lower=False)  # inverse-ok: R^-1 R^-T is the reported parameter covariance, never applied
+            rinv = tri_solve(r, np.eye(k))  # inverse-ok: R^-1 R^-T is the reported parameter covariance, never applied
             cperm = rinv @ rinv.T
         else:
             cperm = np.full((k, k), np.nan)

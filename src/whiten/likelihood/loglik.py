@@ -33,6 +33,7 @@ from .._records import fields_to_dict
 from ..errors import InputError, NotPositiveDefiniteError
 from ..linalg.factor import Factor, FactorHealth, cholesky
 from ..linalg.structured import StructuredCovariance
+from ..linalg.triangular import stack_solve_lower
 
 __all__ = ["gaussian_loglik", "LikelihoodSummary", "as_covariance"]
 
@@ -113,21 +114,6 @@ def _finish(chi2, logdet, n, health, one, details=True):
     return ll, LikelihoodSummary(ll, chi2, int(n), p, lp, logdet, health)
 
 
-def _stack_solve_lower(lower: np.ndarray, r: np.ndarray) -> np.ndarray:
-    """``L^{-1} r`` for stacks: lower (..., n, n), r (..., n), batch shapes broadcast.
-
-    scipy >= 1.15 broadcasts ``solve_triangular`` over leading axes; older
-    versions fall back to ``numpy.linalg.solve`` (an LU of a triangular matrix,
-    still a solve and still without a per-matrix Python loop).
-    """
-    from scipy.linalg import solve_triangular
-
-    try:
-        return solve_triangular(lower, r[..., None], lower=True, check_finite=False)[..., 0]
-    except ValueError:  # pragma: no cover - scipy < 1.15
-        return np.linalg.solve(lower, r[..., None])[..., 0]
-
-
 def _first_failing(a: np.ndarray) -> tuple[tuple[int, ...], int | None]:
     """Index of the first matrix in a stack that does not factor (error path only)."""
     for idx in np.ndindex(a.shape[:-2]):
@@ -182,7 +168,7 @@ def _batched(resid: Any, cov: np.ndarray, mean: Any, return_details: bool):
         raise NotPositiveDefiniteError(
             f"cov[{idx}]: is not positive definite{extra}; factor it with whiten.cholesky(cov[{idx}]) "
             "to see why, or repair it before stacking", pivot=neg) from None
-    z = _stack_solve_lower(lower, r)
+    z = stack_solve_lower(lower, r)
     chi2 = np.einsum("...i,...i->...", z, z)
     logdet = 2.0 * np.sum(np.log(np.diagonal(lower, axis1=-2, axis2=-1)), axis=-1)
     chi2 = np.broadcast_to(chi2, batch)

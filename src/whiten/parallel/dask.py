@@ -410,20 +410,20 @@ def _sqrt_weights(wb, offset: int) -> np.ndarray:
 
 
 def _r_block(xb, yb, intercept, offset, names, wb=None):
-    from ..regression.qr import _r_of
+    from ..linalg.qr import r_of
 
-    return _r_of(_aug_block(xb, yb, intercept, offset, names, wb))
+    return r_of(_aug_block(xb, yb, intercept, offset, names, wb))
 
 
 def _r_stack(a, b):
-    from ..regression.qr import _r_of
+    from ..linalg.qr import r_of as _r_of
 
     return _r_of(np.asfortranarray(np.vstack([a, b])))
 
 
 def _pass_block(xb, yb, intercept, offset, names, kept, sw, x, kind, want_grad, wb=None):
     """(A^T r, r^T r) of one (weighted) block, the residual in extended precision when refining."""
-    from ..regression import _extended
+    from ..linalg import compensated as _extended
 
     blk = _aug_block(xb, yb, intercept, offset, names, wb)
     ab = blk[:, kept] * sw[None, :]

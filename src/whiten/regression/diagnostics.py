@@ -17,7 +17,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .qr import tri_solve
+from ..linalg.qr import tri_solve
 
 __all__ = ["CollinearityReport", "collinearity_report", "vif_from_r", "describe_dependence"]
 

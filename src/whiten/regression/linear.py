@@ -42,10 +42,10 @@ from .._settings import current
 from .._validate import as_float_array, as_rows
 from .._warn import warn
 from ..errors import ConditioningWarning, InputError, RankDeficiencyWarning
-from . import _extended
+from ..linalg import compensated as _extended
 from .diagnostics import CollinearityReport, collinearity_report, describe_dependence, vif_from_r
-from .qr import (cholqr2_r, condition_2, greedy_rank_drop, householder_thin, pow2_column_scale, sequential_dependence,
-                 tri_rcond, tri_solve, tsqr_r)
+from ..linalg.qr import (cholqr2_r, condition_2, greedy_rank_drop, householder_thin, pow2_column_scale, qr_r,
+                        sequential_dependence, tri_rcond, tri_solve, tsqr_r)
 
 __all__ = ["LinearFit", "FitHealth", "fit_linear", "RANK_POLICIES", "INTERCEPT_NAME"]
 
@@ -707,9 +707,7 @@ def solution_from_r(raug, p, path, tol, policy, max_steps, refine, notes, make_p
     if raug.shape[0] > p:
         raug_s = np.vstack([raug_s, np.concatenate([np.zeros(p), raug[p:, p]])[None, :]])
     sub = raug_s[:, kept + [p]]
-    import scipy.linalg as sl
-
-    rk = sl.qr(sub, mode="r")[0][: len(kept) + 1]
+    rk = qr_r(sub)[: len(kept) + 1]
     sgn = np.where(np.diag(rk) < 0, -1.0, 1.0)
     rk = rk * sgn[:, None]
     r = rk[: len(kept), : len(kept)]
@@ -1002,10 +1000,8 @@ def _assemble(design: _Design, sol: _Solution, s, r_full, aside, tol, policy, *,
     if sol.var_rows is None:
         cond_fit = _scaled_condition(sol.r)
     else:
-        import scipy.linalg as sl
-
         kept = [j for j in range(p) if j not in aside]
-        cond_fit = _scaled_condition(sl.qr(r_full[:, kept], mode="r")[0][: len(kept), : len(kept)])
+        cond_fit = _scaled_condition(qr_r(r_full[:, kept])[: len(kept), : len(kept)])
     vif = _vif(design, sol, r_full, aside, dep_support)
     # error bound: eps * (k + k^2 tan theta)
     axn = math.sqrt(ess + (float(rx[0] ** 2) if (design.intercept and rx is not None) else 0.0))
@@ -1100,9 +1096,7 @@ def _vif(design: _Design, sol: _Solution, r_full, aside, dep_support) -> np.ndar
     if pred_cols and sol.var_rows is None:
         v = vif_from_r(sol.r, len(pred_cols))
     elif pred_cols:
-        import scipy.linalg as sl
-
-        rr = sl.qr(r_full[:, cols], mode="r")[0][: len(cols), : len(cols)]
+        rr = qr_r(r_full[:, cols])[: len(cols), : len(cols)]
         v = vif_from_r(rr, len(pred_cols))
     else:
         v = np.array([])

@@ -32,7 +32,7 @@ from .._warn import warn
 from ..errors import InputError, NumericalWarning
 from . import linear as _lin
 from .diagnostics import collinearity_report, vif_from_r
-from .qr import condition_2, householder_thin, pow2_column_scale, sequential_dependence
+from ..linalg.qr import condition_2, householder_thin, pow2_column_scale, sequential_dependence
 
 __all__ = ["fit_ridge", "CRITERIA"]
 
