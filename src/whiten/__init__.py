@@ -4,6 +4,7 @@ The public API is what this module re-exports; everything in underscored
 modules is private.
 """
 
+from . import _engines
 from ._settings import get_options, options, set_options
 from ._version import __version__
 from .errors import (
@@ -18,6 +19,19 @@ from .errors import (
 )
 from .gaussian import Gaussian, RowEvaluation
 from .linalg import Factor, FactorHealth, RankReport, cholesky, pivoted_cholesky
+
+
+def _load_dask():
+    from .parallel import dask
+    return dask
+
+
+def _claims_dask(x):
+    mod = type(x).__module__ or ""
+    return mod.startswith("dask") and hasattr(x, "__dask_graph__") and x.__dask_graph__() is not None
+
+
+_engines.register("dask", claims=_claims_dask, load=_load_dask)
 
 __all__ = [
     "__version__",

@@ -368,7 +368,7 @@ class _DaskDesign:
 
     @property
     def all_names(self) -> list:
-        from ..regression.linear import INTERCEPT_NAME
+        from ..regression.design import INTERCEPT_NAME
 
         return ([INTERCEPT_NAME] if self.intercept else []) + list(self.names)
 
@@ -410,9 +410,9 @@ def _sqrt_weights(wb, offset: int) -> np.ndarray:
 
 
 def _r_block(xb, yb, intercept, offset, names, wb=None):
-    from ..linalg.qr import r_of
+    from ..linalg.qr import r_of as _r_of
 
-    return r_of(_aug_block(xb, yb, intercept, offset, names, wb))
+    return _r_of(_aug_block(xb, yb, intercept, offset, names, wb))
 
 
 def _r_stack(a, b):
@@ -530,7 +530,9 @@ def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, weights: Any = No
     from dask import delayed
     import dask.array as da
 
-    from ..regression.linear import (_EPS, MAX_REFINE, RANK_POLICIES, _assemble, solution_from_r)
+    from .._numerics import EPS as _EPS
+    from ..regression.inference import assemble as _assemble
+    from ..regression.solve import MAX_REFINE, RANK_POLICIES, solution_from_r
 
     if rank_policy not in RANK_POLICIES:
         raise InputError(f"rank_policy: choose one of {list(RANK_POLICIES)}, got {rank_policy!r}")
@@ -598,3 +600,7 @@ def fit_linear_dask(X: Any, y: Any, *, intercept: bool = True, weights: Any = No
     resid = sol.wresid
     fitted = ya - resid
     return _assemble(design, sol, s, r_full, aside, tol, rank_policy, rss=last["rss"], vectors=(fitted, resid))
+
+
+#: the name the engine seam (whiten._engines) calls
+fit_linear = fit_linear_dask
