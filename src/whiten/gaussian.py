@@ -11,7 +11,8 @@ import numpy as np
 
 from ._validate import as_float_array, as_rows, nonfinite_error
 from .errors import ConditioningWarning, InputError
-from .linalg.factor import Factor, _factor_scaled, _health_of, cholesky
+from .linalg.cholesky import cholesky
+from .linalg.factor import Factor, _factor_scaled, _health_of
 
 __all__ = ["Gaussian", "RowEvaluation"]
 

@@ -110,7 +110,7 @@ def _read_mean(path: str, names: list[str]) -> np.ndarray:
 
 def _model(args):
     from ..gaussian import Gaussian
-    from ..linalg.factor import cholesky
+    from ..linalg.cholesky import cholesky
 
     if args.baseline is not None:
         if args.cov is not None:

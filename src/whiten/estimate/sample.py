@@ -26,7 +26,8 @@ import numpy as np
 from .._settings import current
 from .._warn import warn
 from ..errors import ConditioningWarning, InputError, NotPositiveDefiniteError
-from ..linalg.factor import Factor, _health_of, cholesky
+from ..linalg.cholesky import cholesky
+from ..linalg.factor import Factor, _health_of
 from ..linalg.pivoted import pivoted_cholesky
 from .streaming import Block, ScatterState, accumulate
 

@@ -31,7 +31,8 @@ from .._settings import current
 from .._validate import as_float_array, as_rows
 from .._records import fields_to_dict
 from ..errors import InputError, NotPositiveDefiniteError
-from ..linalg.factor import Factor, FactorHealth, cholesky
+from ..linalg.cholesky import cholesky
+from ..linalg.factor import Factor, FactorHealth
 from ..linalg.structured import StructuredCovariance
 from ..linalg.triangular import stack_solve_lower
 

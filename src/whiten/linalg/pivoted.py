@@ -10,7 +10,7 @@ from scipy.linalg import lapack, solve_triangular
 
 from .._validate import as_square
 from ..errors import InputError, NotPositiveDefiniteError
-from .factor import _pow2_scale
+from .health import _pow2_scale
 
 __all__ = ["RankReport", "pivoted_cholesky"]
 
