@@ -181,10 +181,10 @@ def _chart(fit, path: str, force: bool) -> None:
     ax.set_ylabel("residual")
     ax.set_title("residuals against fitted")
     ax = axes[1]
-    if fit.ridge is None and fit._r is not None:
+    if fit.influence_available:
         inf = fit.influence()
         ax.scatter(inf.leverage, inf.studentized_external, s=10, color="#86bbd8")
-        p = len(fit._fit_cols)
+        p = fit.rank  # the columns fitted: for a fit with influence measures, rank == their number
         ax.axvline(2 * p / fit.nobs, color="#f26419", lw=0.8, ls="--", label="2p/n")
         ax.axhline(0.0, color="0.4", lw=0.8)
         ax.set_xlabel("leverage")

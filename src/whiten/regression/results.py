@@ -299,6 +299,11 @@ class LinearFit:
         all_names = ([INTERCEPT_NAME] if self.intercept else []) + list(self.predictor_names)
         return np.array([full[all_names[c]] for c in self._fit_cols])
 
+    @property
+    def influence_available(self) -> bool:
+        """Whether :meth:`influence` applies: an unpenalised fit that kept its R (not ridge, not minimum-norm)."""
+        return self.ridge is None and self._r is not None
+
     def influence(self):
         """Leverage, studentized residuals, Cook's distance and DFBETAS (see :func:`whiten.influence`)."""
         from .influence import influence
