@@ -18,7 +18,7 @@ def model():
     rng = np.random.default_rng(21)
     cov = covariance_with_scales(5, 1e3, rng, decades=2)
     mean = rng.standard_normal(5)
-    return whiten.Gaussian(mean, cov, names=["a", "b", "c", "d", "e"]), mean, cov, rng
+    return whiten.Gaussian(mean, cov, columns=["a", "b", "c", "d", "e"]), mean, cov, rng
 
 
 def test_marginal_matches_sub_matrix(model):
@@ -149,7 +149,7 @@ def test_shape_and_name_errors():
 def test_nonfinite_rows_are_found_by_the_blocked_pass():
     # the many-row path skips a separate scan: a NaN/inf must still be named exactly,
     # in whichever row block it sits (block_rows=4 puts row 9 in the third block)
-    g = whiten.Gaussian([0.0, 0.0, 0.0], np.eye(3), names=["a", "b", "c"])
+    g = whiten.Gaussian([0.0, 0.0, 0.0], np.eye(3), columns=["a", "b", "c"])
     x = np.zeros((12, 3))
     x[9, 2] = -np.inf
     with whiten.options(block_rows=4):

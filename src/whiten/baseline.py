@@ -453,7 +453,7 @@ class Baseline:
         if factor.dim != mean.shape[0] or len(cols) != mean.shape[0]:
             raise InputError(f"baseline: mean ({mean.shape[0]}), factor ({factor.dim}) and columns "
                              f"({len(cols)}) disagree in length")
-        if factor.names != cols:
+        if factor.columns != cols:
             factor = Factor(factor.lower, factor.health, cols)
         self._mean = mean
         self._factor = factor
@@ -514,7 +514,7 @@ class Baseline:
     @property
     def gaussian(self) -> Gaussian:
         if self._gaussian is None:
-            self._gaussian = Gaussian(self._mean, self._factor, names=self._columns)
+            self._gaussian = Gaussian(self._mean, self._factor, columns=self._columns)
         return self._gaussian
 
     def __repr__(self) -> str:
@@ -712,7 +712,7 @@ class Baseline:
         if not np.isfinite(mean).all() or not np.isfinite(low).all():
             raise bad("mean or factor holds non-finite values")
         try:
-            f0 = Factor.from_lower(low, names=cols, jitter=health.jitter)
+            f0 = Factor.from_lower(low, columns=cols, jitter=health.jitter)
         except (InputError, NotPositiveDefiniteError) as exc:
             raise bad(f"the factor is not a valid Cholesky factor ({exc})") from None
         f = Factor(low, _health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)

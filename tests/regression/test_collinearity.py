@@ -174,7 +174,7 @@ def test_inputs_not_modified_and_results_frozen():
     import json
 
     json.dumps(d)  # serialisable
-    assert d["names"][0] == "(intercept)" and d["health"]["path"] == "householder"
+    assert d["names"][0] == "(intercept)" and d["health"]["method"] == "householder"
 
 
 def test_compensated_and_longdouble_residuals_agree_with_exact_arithmetic():
@@ -217,7 +217,7 @@ def test_spread_out_near_dependence_found_by_singular_values():
     latest = max(j for j in range(n) if ratio(np.delete(k, j, axis=1)) > 1e-4)
     with pytest.warns(RankDeficiencyWarning, match=f"rank 29 of 30.*'x{latest}' set aside"):
         fit = whiten.fit_linear(a, y, intercept=False, rank_tol=1e-4)
-    assert fit.health.set_aside == (f"x{latest}",) and "svd-rank" in fit.health.path
+    assert fit.health.set_aside == (f"x{latest}",) and "svd-rank" in fit.health.method
 
 
 def test_residual_arithmetic_without_wider_longdouble(monkeypatch):

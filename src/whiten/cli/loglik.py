@@ -123,12 +123,12 @@ def _model(args):
                              "(whiten.load_baseline is missing); pass --mean FILE --cov FILE instead")
         b = loader(args.baseline)
         names = list(b.columns)
-        return Gaussian(b.mean, b.factor, names=names), names
+        return Gaussian(b.mean, b.factor, columns=names), names
     if args.cov is None:
         raise InputError("--mean needs --cov FILE (the covariance matrix as a square CSV)")
     cov, names = _read_cov(args.cov)
     mean = _read_mean(args.mean, names)
-    return Gaussian(mean, cholesky(cov, names=names), names=names), names
+    return Gaussian(mean, cholesky(cov, columns=names), columns=names), names
 
 
 def _chunks(path: str, names: list[str]):

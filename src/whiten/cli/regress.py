@@ -118,7 +118,7 @@ def _report(fit, args, preds) -> str:
     pct = f"{100 * args.level:g}%"
     lines.append(f"-- coefficients, each with its {pct} interval --")
     ci = fit.conf_int(args.level)
-    pred_pos = {n: i for i, n in enumerate(fit.predictor_names)}
+    pred_pos = {n: i for i, n in enumerate(fit.columns)}
     wname = max(len(n) for n in fit.names)
     for i, name in enumerate(fit.names):
         est = fit.coef[i]
@@ -150,8 +150,8 @@ def _report(fit, args, preds) -> str:
     ref = (f"{h.refinement_steps} refinement step(s) with {h.residual_arithmetic} residuals, "
            f"{'converged' if h.refinement_converged else 'stopped'} (last correction {h.last_correction:.1g})"
            if h.refinement_steps else "no refinement")
-    lines.append(f"  solve: {h.path}; {ref}")
-    lines.append(f"  rank {h.rank} of {h.columns} columns")
+    lines.append(f"  solve: {h.method}; {ref}")
+    lines.append(f"  rank {h.rank} of {h.n_columns} columns")
     for note in h.notes:
         lines.append(f"  note: {note}")
     lines.append("")
@@ -198,7 +198,7 @@ def _chart(fit, path: str, force: bool) -> None:
     if panels == 4:
         r = fit.ridge
         ax = axes[2]
-        for j, nm in enumerate(fit.predictor_names):
+        for j, nm in enumerate(fit.columns):
             ax.plot(r.grid, r.paths[:, j], label=nm)
         ax.axvline(r.penalty, color="0.3", ls=":", lw=1)
         ax.set_xscale("log")

@@ -105,7 +105,7 @@ def check_scatter(state: ScatterState, names: Sequence[str], *, dependent: bool 
             "Leave them out with columns=[...]")
     if not dependent:
         return
-    rep = pivoted_cholesky(s, names=list(names))
+    rep = pivoted_cholesky(s, columns=list(names))
     if not rep.full_rank:
         parts = "; ".join(rep.describe())
         raise InputError(
@@ -146,7 +146,7 @@ def _gram_factor(state: ScatterState, names: Sequence[str]) -> tuple[Factor | No
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConditioningWarning)
         try:
-            f = cholesky(cov, jitter=False, names=list(names))
+            f = cholesky(cov, jitter=False, columns=list(names))
         except NotPositiveDefiniteError:
             return None, math.inf
     return f, f.digits_lost
@@ -205,4 +205,4 @@ def covariance_factor(fit: ScatterFit, names: Sequence[str]) -> Factor:
     if fit.gram_factor is not None:
         _conditioning_warning(fit.gram_factor, "the covariance")
         return fit.gram_factor
-    return cholesky(st.scatter() / div, names=list(names))
+    return cholesky(st.scatter() / div, columns=list(names))

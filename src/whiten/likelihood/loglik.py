@@ -185,7 +185,7 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
     ----------
     resid : array_like or DataFrame, shape (n,), (N, n) or (..., n)
         Residuals (observed minus predicted). A DataFrame's columns are matched
-        to the covariance's names when it has them.
+        to the covariance's columns when it has them.
     cov : array_like (n, n), Factor, structured covariance, or array_like (..., n, n)
         A 2-D matrix is factored with :func:`whiten.cholesky` (disclosed jitter
         as usual); a Factor or structured covariance (:func:`whiten.diagonal`,
@@ -254,7 +254,7 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
     n = f.dim
     index = None
     if hasattr(resid, "columns"):
-        rows, _, index = as_rows(resid, n, names=f.names, name="resid")
+        rows, _, index = as_rows(resid, n, names=f.columns, name="resid")
         one, batch = False, (rows.shape[0],)
     else:
         r, _, _ = as_float_array(resid, name="resid", ndim=tuple(range(1, 33)))

@@ -28,14 +28,14 @@ def _min_eig(ms: np.ndarray) -> float:
     return float(eigvalsh(ms, subset_by_index=[0, 0], check_finite=False)[0])
 
 
-def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str] | None = None) -> Factor:
+def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[str] | None = None) -> Factor:
     """Cholesky factor of a symmetric positive (semi-)definite matrix, with disclosed repair.
 
     Parameters
     ----------
     a : array_like or pandas.DataFrame, shape (p, p)
         Symmetric to ``whiten.get_options().symmetry_rtol`` relative to ``max|a|``.
-        A DataFrame's column names become the factor's ``names``.
+        A DataFrame's column names become the factor's ``columns``.
     jitter : {"auto", False} or float
         ``"auto"`` (default): factor ``a`` as given; only if that fails, add an
         increasing ladder of diagonal jitter ``jitter_start * mean(diag a)``,
@@ -43,8 +43,8 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str
         with a :class:`~whiten.errors.JitterWarning` giving the amount.
         ``False``: never add jitter; failure raises. A float: add exactly this
         absolute amount to the diagonal (recorded, no warning).
-    names : sequence of str, optional
-        Variable names used in messages and results.
+    columns : sequence of str, optional
+        Column (variable) labels used in messages and results.
 
     Returns
     -------
@@ -83,9 +83,9 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str
     """
     opts = current()
     m, frame_names = as_square(a, name="a")
-    names = list(names) if names is not None else frame_names
+    names = list(columns) if columns is not None else frame_names
     if names is not None and len(names) != m.shape[0]:
-        raise InputError(f"names: expected {m.shape[0]} names, got {len(names)}")
+        raise InputError(f"columns: expected {m.shape[0]} names, got {len(names)}")
     diag = np.diag(m)
     if np.any(diag < 0):
         k = int(np.argmin(diag))

@@ -42,7 +42,7 @@ class Factor:
     rcond : float
     digits_lost : float
     health : FactorHealth
-    names : list of str or None
+    columns : list of str or None
     dim : int
 
     Examples
@@ -67,7 +67,7 @@ class Factor:
         self._health = health
         self._names = list(names) if names is not None else None
         if self._names is not None and len(self._names) != lower.shape[0]:
-            raise InputError(f"names: expected {lower.shape[0]} names, got {len(self._names)}")
+            raise InputError(f"columns: expected {lower.shape[0]} names, got {len(self._names)}")
         if matrix is not None:
             matrix = np.array(matrix, dtype=np.float64, copy=True) if _copy else matrix
             matrix.setflags(write=False)
@@ -77,7 +77,7 @@ class Factor:
 
     # ------------------------------------------------------------------ build
     @classmethod
-    def from_lower(cls, lower: Any, *, names: Sequence[str] | None = None, jitter: float = 0.0) -> "Factor":
+    def from_lower(cls, lower: Any, *, columns: Sequence[str] | None = None, jitter: float = 0.0) -> "Factor":
         """Wrap an existing lower-triangular factor (checked: square, finite, positive diagonal).
 
         Raises
@@ -94,6 +94,7 @@ class Factor:
             raise InputError("lower: contains NaN or infinite entries")
         if np.any(np.triu(arr, 1) != 0):
             raise InputError("lower: has non-zero entries above the diagonal; pass a lower-triangular factor")
+        names = columns
         d = np.diag(arr)
         if np.any(d <= 0):
             k = int(np.flatnonzero(d <= 0)[0])
@@ -112,7 +113,8 @@ class Factor:
         return self._lower.shape[0]
 
     @property
-    def names(self) -> list[str] | None:
+    def columns(self) -> list[str] | None:
+        """Column (variable) labels, or None."""
         return None if self._names is None else list(self._names)
 
     @property

@@ -85,7 +85,7 @@ def _baseline_parts(baseline: Any):
         raise InputError(f"baseline: mean has {mu.shape[0]} entries but the factor is {factor.dim} x {factor.dim}")
     cols = getattr(baseline, "columns", None)
     if cols is None:
-        cols = getattr(baseline, "names", None) or factor.names
+        cols = getattr(baseline, "names", None) or factor.columns
     cols = [str(c) for c in cols] if cols is not None else [f"x{j}" for j in range(factor.dim)]
     m = getattr(baseline, "n", None)
     m = None if m is None else int(m)
@@ -359,7 +359,7 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
     Examples
     --------
     >>> import numpy as np, whiten
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.8], [0.8, 1.0]], names=["a", "b"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.8], [0.8, 1.0]], columns=["a", "b"])
     >>> s = whiten.monitor.score(g, np.array([[1.0, 1.0], [1.0, -1.0]]), phase="known")
     >>> bool(s.d2[1] > s.d2[0]) and bool(np.allclose(s.filter(like="chain:").sum(axis=1), s.d2))
     True

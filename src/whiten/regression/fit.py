@@ -23,7 +23,7 @@ conditioned (rcond > 1e-12), otherwise from a Householder tall-skinny QR
 (Demmel et al., 2012). Refinement there uses the corrected semi-normal
 equations (Björck, 1987) with ``numpy.longdouble`` residuals -- accurate while
 the scaled condition number is below ``1e5``; above that the fit falls back to
-the dense Householder route and says so in ``health.path``. With
+the dense Householder route and says so in ``health.method``. With
 ``refine="auto"`` the many-row path refines only when fewer than 8 digits would
 otherwise survive (the statistical uncertainty of a fit on that many rows is far
 larger than such rounding), and says so in ``health.notes``.

@@ -144,10 +144,10 @@ def assemble(design: Design, sol: Solution, s, r_full, aside, tol, policy, *, rs
     else:
         solved = digits
     health = FitHealth(
-        path=sol.path, condition_number=cond, condition_number_raw=cond_raw, condition_number_fitted=cond_fit,
+        method=sol.method, condition_number=cond, condition_number_raw=cond_raw, condition_number_fitted=cond_fit,
         error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=sol.steps,
         refinement_converged=bool(sol.converged), last_correction=sol.last_corr,
-        residual_arithmetic=sol.arithmetic, rank=rank, columns=p, rank_tol=tol,
+        residual_arithmetic=sol.arithmetic, rank=rank, n_columns=p, rank_tol=tol,
         set_aside=tuple(names[j] for j in aside), dependencies=tuple(dep_sentences), notes=tuple(sol.notes))
     opts = current()
     if 15.95 - digits > opts.digits_warn:
@@ -165,7 +165,7 @@ def assemble(design: Design, sol: Solution, s, r_full, aside, tol, policy, *, rs
         loglik=ll, aic=aic, bic=bic, nobs=n, dof=dof, dof_model=dof_model, rank=rank, vif=read_only(vif),
         collinearity=coll, fitted=fitted if vectors is not None else read_only(fitted),
         residuals=resid if vectors is not None else read_only(resid), health=health,
-        intercept=design.intercept, predictor_names=tuple(design.names), weighted=weighted,
+        intercept=design.intercept, columns=tuple(design.names), weighted=weighted,
         _r=fit_r_for_pred, _scale=sc, _fit_cols=tuple(sol.cols), _q=sol.q, _wresid=sol.wresid,
         _design=design)
 

@@ -31,7 +31,7 @@ class FitHealth:
 
     Attributes
     ----------
-    path : str
+    method : str
         What ran, e.g. ``"householder"`` or ``"blocked-tsqr"``, plus any hand-over.
     condition_number : float
         2-norm condition number of the design (all columns, intercept included)
@@ -66,7 +66,8 @@ class FitHealth:
         ``"compensated"`` (double-double by error-free transformations),
         ``"longdouble"`` or ``"none"`` (refinement skipped).
     rank : int
-    columns : int
+    n_columns : int
+        Design columns (intercept included).
     rank_tol : float
     set_aside : tuple of str
         Columns not fitted because they depend on earlier ones.
@@ -75,7 +76,7 @@ class FitHealth:
     notes : tuple of str
     """
 
-    path: str
+    method: str
     condition_number: float
     condition_number_raw: float
     condition_number_fitted: float
@@ -87,7 +88,7 @@ class FitHealth:
     last_correction: float
     residual_arithmetic: str
     rank: int
-    columns: int
+    n_columns: int
     rank_tol: float
     set_aside: tuple
     dependencies: tuple
@@ -209,7 +210,7 @@ class LinearFit:
     residuals: np.ndarray
     health: FitHealth
     intercept: bool
-    predictor_names: tuple
+    columns: tuple
     weighted: str
     ridge: RidgeInfo | None = None
     # private: what predict() and influence() need (scaled coordinates)
@@ -223,9 +224,9 @@ class LinearFit:
 
     def __repr__(self) -> str:
         h = self.health
-        return (f"LinearFit(nobs={self.nobs}, rank={self.rank}/{h.columns}, r_squared={self.r_squared:.6g}, "
+        return (f"LinearFit(nobs={self.nobs}, rank={self.rank}/{h.n_columns}, r_squared={self.r_squared:.6g}, "
                 f"residual_sd={self.residual_sd:.6g}, condition_number={h.condition_number:.3g}, "
-                f"digits_trusted={h.digits_trusted:.1f}, digits_solved={h.digits_solved:.1f}, path={h.path!r}"
+                f"digits_trusted={h.digits_trusted:.1f}, digits_solved={h.digits_solved:.1f}, method={h.method!r}"
                 + (f", ridge={self.ridge.penalty:.4g}" if self.ridge is not None else "") + ")")
 
     # ------------------------------------------------------------ simple views
@@ -275,7 +276,7 @@ class LinearFit:
         """
         if interval not in (None, "confidence", "prediction"):
             raise InputError(f"interval: choose None, 'confidence' or 'prediction', got {interval!r}")
-        rows, one, index = as_rows(x, len(self.predictor_names), names=list(self.predictor_names), name="x")
+        rows, one, index = as_rows(x, len(self.columns), names=list(self.columns), name="x")
         design = np.column_stack([np.ones(rows.shape[0]), rows]) if self.intercept else rows
         cols = list(self._fit_cols)
         beta = self._coef_fitted()
@@ -296,7 +297,7 @@ class LinearFit:
 
     def _coef_fitted(self) -> np.ndarray:
         full = dict(zip(self.names, self.coef))
-        all_names = ([INTERCEPT_NAME] if self.intercept else []) + list(self.predictor_names)
+        all_names = ([INTERCEPT_NAME] if self.intercept else []) + list(self.columns)
         return np.array([full[all_names[c]] for c in self._fit_cols])
 
     @property
@@ -316,7 +317,7 @@ class LinearFit:
 
         ci = self.conf_int(0.95)
         vif = np.full(len(self.names), np.nan)
-        pred_pos = {n: i for i, n in enumerate(self.predictor_names)}
+        pred_pos = {n: i for i, n in enumerate(self.columns)}
         for i, n in enumerate(self.names):
             if n in pred_pos:
                 vif[i] = self.vif[pred_pos[n]]
@@ -333,7 +334,7 @@ class LinearFit:
             "coef": _numbers(self.coef), "stderr": _numbers(self.stderr),
             "tvalues": _numbers(self.tvalues), "pvalues": _numbers(self.pvalues),
             "conf_int_95": [_numbers(r) for r in ci],
-            "predictors": list(self.predictor_names), "vif": _numbers(self.vif),
+            "columns": list(self.columns), "vif": _numbers(self.vif),
             "residual_sd": json_number(self.residual_sd), "r_squared": json_number(self.r_squared),
             "adj_r_squared": json_number(self.adj_r_squared),
             "f_statistic": json_number(self.f_statistic), "f_pvalue": json_number(self.f_pvalue),

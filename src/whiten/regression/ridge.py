@@ -200,11 +200,11 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     lc = corr if math.isfinite(corr) else 1.0
     solved = 15.6 if conv and lc <= 2 * EPS else float(min(15.6, max(0.0, -math.log10(max(lc, EPS)))))
     health = FitHealth(
-        path="ridge-augmented-householder", condition_number=float(coll.condition_indices[-1]),
+        method="ridge-augmented-householder", condition_number=float(coll.condition_indices[-1]),
         condition_number_raw=condition_2(r_full / s_full[None, :]), condition_number_fitted=cond_aug,
         error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=steps,
         refinement_converged=bool(conv), last_correction=corr, residual_arithmetic="compensated",
-        rank=design.p, columns=design.p, rank_tol=tol, set_aside=(), dependencies=(),
+        rank=design.p, n_columns=design.p, rank_tol=tol, set_aside=(), dependencies=(),
         notes=(f"penalty {lam:.6g} on {'standardized ' if standardize else ''}predictors; intercept unpenalised",))
     info = RidgeInfo(penalty=lam, criterion=kind, standardized=bool(standardize), effective_dof=edf,
                           grid=info_grid, scores=info_scores, paths=info_paths, at_edge=at_edge)
@@ -220,7 +220,7 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
         f_pvalue=fp, loglik=ll, aic=-2 * ll + 2 * edf, bic=-2 * ll + math.log(n) * edf, nobs=n, dof=dof,
         dof_model=dof_model, rank=design.p, vif=read_only(vif), collinearity=coll, fitted=read_only(fitted),
         residuals=read_only(design.y - fitted), health=health, intercept=icpt,
-        predictor_names=tuple(design.names),
+        columns=tuple(design.names),
         weighted="gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none"),
         ridge=info, _r=None, _scale=None, _fit_cols=tuple(range(design.p)), _q=None, _wresid=e_w,
         _design=design)

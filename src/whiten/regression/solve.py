@@ -61,7 +61,7 @@ class Solution:
     converged: bool
     last_corr: float
     arithmetic: str
-    path: str
+    method: str         # what ran (becomes FitHealth.method)
     notes: list
     var_rows: np.ndarray | None = None   # minimum-norm: rows whose squared norms are the variances
 

@@ -65,7 +65,8 @@ class StructuredCovariance:
         raise NotImplementedError
 
     @property
-    def names(self) -> list[str] | None:
+    def columns(self) -> list[str] | None:
+        """Column (variable) labels, or None."""
         return None if self._names is None else list(self._names)
 
     @property

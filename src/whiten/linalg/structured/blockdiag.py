@@ -35,7 +35,7 @@ class BlockDiagonalCovariance(StructuredCovariance):
         self._parts = parts
         sizes = [p.dim for p in parts]
         self._offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
-        names = [p.names for p in parts]
+        names = [p.columns for p in parts]
         self._names = sum(names, []) if all(n is not None for n in names) else None
         hs = [p.health for p in parts]
         self._health = FactorHealth(

@@ -16,12 +16,12 @@ __all__ = ['DiagonalCovariance', 'diagonal']
 class DiagonalCovariance(StructuredCovariance):
     """``diag(d)``: independent errors. Build with :func:`diagonal`."""
 
-    def __init__(self, d: Any, names: Sequence[str] | None = None):
+    def __init__(self, d: Any, columns: Sequence[str] | None = None):
         self._d = _positive_vector(d, "d")
         self._sd = np.sqrt(self._d)
-        self._names = None if names is None else [str(n) for n in names]
+        self._names = None if columns is None else [str(n) for n in columns]
         if self._names is not None and len(self._names) != self._d.size:
-            raise InputError(f"names: expected {self._d.size} names, got {len(self._names)}")
+            raise InputError(f"columns: expected {self._d.size} names, got {len(self._names)}")
         # A diagonal matrix scaled to unit diagonal is the identity: no digits lost.
         rc = float(self._d.min() / self._d.max())
         self._health = FactorHealth(rc, 1.0, 0.0, 0.0, 0.0, "diagonal")
@@ -52,14 +52,15 @@ class DiagonalCovariance(StructuredCovariance):
         return np.diag(self._d)
 
 
-def diagonal(d: Any, *, names: Sequence[str] | None = None) -> DiagonalCovariance:
+def diagonal(d: Any, *, columns: Sequence[str] | None = None) -> DiagonalCovariance:
     """Covariance of independent errors with variances ``d``.
 
     Parameters
     ----------
     d : array_like, shape (n,)
         Positive, finite variances.
-    names : sequence of str, optional
+    columns : sequence of str, optional
+        Column (variable) labels.
 
     Returns
     -------
@@ -84,4 +85,4 @@ def diagonal(d: Any, *, names: Sequence[str] | None = None) -> DiagonalCovarianc
     >>> bool(np.isclose(s.quad([2.0, 1e-10]), 2.0))
     True
     """
-    return DiagonalCovariance(d, names)
+    return DiagonalCovariance(d, columns)
