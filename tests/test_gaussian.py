@@ -18,7 +18,7 @@ def model():
     rng = np.random.default_rng(21)
     cov = covariance_with_scales(5, 1e3, rng, decades=2)
     mean = rng.standard_normal(5)
-    return whiten.Gaussian(mean, cov, names=["a", "b", "c", "d", "e"]), mean, cov, rng
+    return whiten.Gaussian(mean, cov, columns=["a", "b", "c", "d", "e"]), mean, cov, rng
 
 
 def test_marginal_matches_sub_matrix(model):
@@ -27,7 +27,7 @@ def test_marginal_matches_sub_matrix(model):
     g, mean, cov, rng = model
     m = g.marginal(["d", "b"])
     idx = [3, 1]
-    assert m.names == ["d", "b"]
+    assert m.columns == ["d", "b"]
     assert np.allclose(m.mean, mean[idx])
     assert np.allclose(m.cov, cov[np.ix_(idx, idx)], rtol=1e-12, atol=0)
     x = rng.standard_normal((10, 2))
@@ -47,7 +47,7 @@ def test_conditional_matches_textbook_formula(model):
     mu_ref = mean[b] + s_ba @ np.linalg.solve(s_aa, xa - mean[a])
     cov_ref = s_bb - s_ba @ np.linalg.solve(s_aa, s_ba.T)
     kappa = np.linalg.cond(cov)
-    assert c.names == ["b", "d", "e"]
+    assert c.columns == ["b", "d", "e"]
     assert np.allclose(c.mean, mu_ref, rtol=0, atol=50 * kappa * EPS * np.abs(mu_ref).max())
     assert np.allclose(c.cov, cov_ref, rtol=0, atol=50 * kappa * EPS * np.abs(cov).max())
 
@@ -149,7 +149,7 @@ def test_shape_and_name_errors():
 def test_nonfinite_rows_are_found_by_the_blocked_pass():
     # the many-row path skips a separate scan: a NaN/inf must still be named exactly,
     # in whichever row block it sits (block_rows=4 puts row 9 in the third block)
-    g = whiten.Gaussian([0.0, 0.0, 0.0], np.eye(3), names=["a", "b", "c"])
+    g = whiten.Gaussian([0.0, 0.0, 0.0], np.eye(3), columns=["a", "b", "c"])
     x = np.zeros((12, 3))
     x[9, 2] = -np.inf
     with whiten.options(block_rows=4):

@@ -11,7 +11,8 @@ import numpy as np
 
 from ._validate import as_float_array, as_rows, nonfinite_error
 from .errors import ConditioningWarning, InputError
-from .linalg.factor import Factor, _factor_scaled, _health_of, cholesky
+from .linalg.cholesky import cholesky
+from .linalg.factor import Factor, _factor_scaled, _health_of
 
 __all__ = ["Gaussian", "RowEvaluation"]
 
@@ -51,8 +52,8 @@ class Gaussian:
         A Factor is used as is (no refactorization).
     jitter : {"auto", False} or float
         Passed to :func:`whiten.cholesky` when ``cov`` is a matrix.
-    names : sequence of str, optional
-        Variable names; taken from a DataFrame/Series/Factor when not given.
+    columns : sequence of str, optional
+        Column (variable) labels; taken from a DataFrame/Series/Factor when not given.
 
     Raises
     ------
@@ -71,25 +72,26 @@ class Gaussian:
     """
 
     def __init__(self, mean: Any, cov: Any, *, jitter: str | bool | float = "auto",
-                 names: Sequence[str] | None = None):
+                 columns: Sequence[str] | None = None):
+        names = columns
         mu, mu_names, mu_index = as_float_array(mean, name="mean", ndim=(1,))
         if mu_index is not None and mu_names is None:
             mu_names = [str(k) for k in mu_index]
         if isinstance(cov, Factor):
             factor = cov
         else:
-            factor = cholesky(cov, jitter=jitter, names=names)
+            factor = cholesky(cov, jitter=jitter, columns=names)
         if factor.dim != mu.shape[0]:
             raise InputError(f"mean has length {mu.shape[0]} but cov is {factor.dim} x {factor.dim}")
         cand = [list(names)] if names is not None else []
-        cand += [n for n in (factor.names, mu_names) if n is not None]
+        cand += [n for n in (factor.columns, mu_names) if n is not None]
         final = cand[0] if cand else None
         for other in cand[1:]:
             if list(other) != list(final):
                 raise InputError(f"variable names disagree: {list(final)} vs {list(other)}")
         if final is not None and len(final) != mu.shape[0]:
-            raise InputError(f"names: expected {mu.shape[0]} names, got {len(final)}")
-        if final is not None and factor.names != list(final):
+            raise InputError(f"columns: expected {mu.shape[0]} names, got {len(final)}")
+        if final is not None and factor.columns != list(final):
             factor = Factor(factor.lower, factor.health, final, matrix=factor.matrix())
         mu = mu.copy()
         mu.setflags(write=False)
@@ -116,7 +118,7 @@ class Gaussian:
         return self._mean.shape[0]
 
     @property
-    def names(self) -> list[str] | None:
+    def columns(self) -> list[str] | None:
         return None if self._names is None else list(self._names)
 
     @property
@@ -124,7 +126,7 @@ class Gaussian:
         return self._factor.health
 
     def __repr__(self) -> str:
-        return f"Gaussian(dim={self.dim}, names={self._names}, {self._factor!r})"
+        return f"Gaussian(dim={self.dim}, columns={self._names}, {self._factor!r})"
 
     # ------------------------------------------------------------- densities
     def _prepare(self, x: Any, missing: str):
@@ -262,7 +264,7 @@ class Gaussian:
         ii = self._indices(idx, "idx")
         names = None if self._names is None else [self._names[i] for i in ii]
         return Gaussian(self._mean[ii], self._sub_factor(ii) if ii.size != self.dim or
-                        not np.array_equal(ii, np.arange(self.dim)) else self._factor, names=names)
+                        not np.array_equal(ii, np.arange(self.dim)) else self._factor, columns=names)
 
     def conditional(self, idx: Any, values: Any) -> "Gaussian":
         """Distribution of the other variables given ``x[idx] = values``.
@@ -295,7 +297,7 @@ class Gaussian:
         msub = l22 @ l22.T
         h = _health_of(l22, self._factor.jitter, self._factor.health.jitter_relative, "schur")
         names = None if self._names is None else [self._names[i] for i in ib]
-        return Gaussian(mu, Factor(l22, h, names, matrix=msub), names=names)
+        return Gaussian(mu, Factor(l22, h, names, matrix=msub), columns=names)
 
     # ------------------------------------------------------------- the rest
     def sample(self, n: int, rng: Any = None) -> np.ndarray:

@@ -161,7 +161,7 @@ def test_ill_conditioned_jacobian_warns_with_numbers():
         fit = whiten.calibrate(lambda th: x @ th, [0.0, 0.0], 2 * t, np.eye(12), jac=lambda th: x)
     # numpy's condition number of the (already white) design is the reference
     assert fit.health.cond == pytest.approx(np.linalg.cond(x), rel=1e-3)
-    assert fit.health.rank == 2 and fit.health.digits_lost > 10
+    assert fit.health.rank == 2 and fit.health.digits_lost_2norm > 10
 
 
 def test_model_exception_becomes_input_error():

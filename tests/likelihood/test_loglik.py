@@ -226,7 +226,9 @@ def test_grad_cov_against_finite_differences():
         whiten.loglik_grad_mean(rows[0], cov(th), np.zeros((7, 2)))
 
 
-@pytest.mark.parametrize("module", ["whiten.linalg.structured", "whiten.likelihood.loglik",
+@pytest.mark.parametrize("module", ["whiten.linalg.structured.diagonal", "whiten.linalg.structured.lowrank",
+                                    "whiten.linalg.structured.blockdiag", "whiten.linalg.structured.kronecker",
+                                    "whiten.likelihood.loglik",
                                     "whiten.likelihood.gradients", "whiten.likelihood.calibrate"])
 def test_docstring_examples(module):
     res = doctest.testmod(importlib.import_module(module), optionflags=doctest.NORMALIZE_WHITESPACE)

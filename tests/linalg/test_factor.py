@@ -113,7 +113,7 @@ def test_update_and_downdate_equal_refactoring(case):
 
 
 def test_downdate_that_loses_definiteness_raises_naming_pivot():
-    f = whiten.cholesky(np.diag([1.0, 2.0, 3.0]), names=["t1", "t2", "t3"])
+    f = whiten.cholesky(np.diag([1.0, 2.0, 3.0]), columns=["t1", "t2", "t3"])
     with pytest.raises(NotPositiveDefiniteError, match=r"downdate would lose positive definiteness at pivot 't2'"):
         f.downdate([0.0, 2.0, 0.0])
 
@@ -137,7 +137,7 @@ GRAM_RANK2 = (lambda a: a.T @ a)(np.array([[1.0, 2, 3], [4, 5, 6], [7, 8, 9]]))
 
 def test_rank_two_gram_is_found_by_pivoted_factorization():
     # [[1,2,3],[4,5,6],[7,8,9]] has rank 2 (second column is the mean of the others), so its Gram does
-    rep = whiten.pivoted_cholesky(GRAM_RANK2, names=["c1", "c2", "c3"])
+    rep = whiten.pivoted_cholesky(GRAM_RANK2, columns=["c1", "c2", "c3"])
     assert rep.rank == 2 and not rep.full_rank
     (dep,) = rep.dependent
     assert set(rep.dependencies[dep]) == {"c1", "c2", "c3"} - {dep}
@@ -237,7 +237,7 @@ def test_non_numeric_dataframe_column_is_named():
 def test_dataframe_names_flow_into_the_factor():
     df = pd.DataFrame([[2.0, 0.3], [0.3, 1.0]], columns=["flow", "temp"], index=["flow", "temp"])
     f = whiten.cholesky(df)
-    assert f.names == ["flow", "temp"]
+    assert f.columns == ["flow", "temp"]
 
 
 def test_inputs_are_never_modified():

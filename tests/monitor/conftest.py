@@ -30,7 +30,7 @@ class StandInBaseline:
 def standin(x: np.ndarray, columns) -> StandInBaseline:
     mean = x.mean(axis=0)
     cov = np.cov(x, rowvar=False)  # numpy: unbiased sample covariance
-    f = whiten.cholesky(cov, names=list(columns))
+    f = whiten.cholesky(cov, columns=list(columns))
     return StandInBaseline(mean, f, x.shape[0], list(columns), whiten.Gaussian(mean, f))
 
 

@@ -111,7 +111,7 @@ def test_guards():
         t2_limit(0.01, 4, 50, phase="old")
     with pytest.raises(InputError, match="strictly between 0 and 1"):
         t2_limit(1.5, 4, 50)
-    g = whiten.Gaussian(np.zeros(2), np.eye(2), names=["a", "b"])
+    g = whiten.Gaussian(np.zeros(2), np.eye(2), columns=["a", "b"])
     with pytest.raises(InputError, match="use phase='known'"):
         score(g, np.zeros((1, 2)))
     # a baseline fitted on fewer rows than sensors cannot give the F limit

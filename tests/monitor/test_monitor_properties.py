@@ -16,7 +16,7 @@ def test_drop_and_chain_against_numpy_solve(p, log_kappa, seed):
     rng = np.random.default_rng(seed)
     cov = covariance_with_scales(p, 10.0 ** log_kappa, rng, decades=3.0)
     names = [f"v{j}" for j in range(p)]
-    g = whiten.Gaussian(np.zeros(p), cov, names=names)
+    g = whiten.Gaussian(np.zeros(p), cov, columns=names)
     x = rng.multivariate_normal(np.zeros(p), cov, size=4)
     s = score(g, x, phase="known")
     # tolerance c * kappa * eps with kappa of the unit-diagonal matrix (what the solves depend on)

@@ -120,7 +120,7 @@ def test_missing_model_columns_and_bad_values(case, tmp_path):
 
 def test_parquet_and_gaussian(tmp_path):
     pytest.importorskip("pyarrow")
-    g = whiten.Gaussian([0.0, 1.0], [[2.0, 0.6], [0.6, 1.0]], names=["u", "v"])
+    g = whiten.Gaussian([0.0, 1.0], [[2.0, 0.6], [0.6, 1.0]], columns=["u", "v"])
     rng = np.random.default_rng(5)
     df = pd.DataFrame(rng.normal(size=(300, 2)), columns=["v", "u"])
     df.to_parquet(tmp_path / "r.parquet", index=False)

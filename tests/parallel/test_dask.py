@@ -150,7 +150,7 @@ def test_linear_fit_on_dask_equals_in_memory(client):
         assert fit.r_squared == pytest.approx(ref.r_squared, rel=1e-12)
         assert fit.residual_sd == pytest.approx(ref.residual_sd, rel=1e-10)
         assert np.allclose(fit.vif, ref.vif, rtol=1e-9)
-        assert fit.health.path == "dask-tsqr"
+        assert fit.health.method == "dask-tsqr"
     assert np.allclose(fit.residuals.compute(), ref.residuals, rtol=0, atol=1e-9 * np.abs(y).max())
     assert np.allclose(fit.predict(x[:5]), ref.predict(x[:5]), rtol=1e-10)
 

@@ -158,7 +158,7 @@ def test_blocked_path_matches_statsmodels():
     with whiten.options(block_rows=300):
         fit = whiten.fit_linear(x, y, method="blocked", refine=True)
         inf = fit.influence()
-    assert fit.health.path == "blocked-cholqr2" and fit.health.refinement_steps >= 1
+    assert fit.health.method == "blocked-cholqr2" and fit.health.refinement_steps >= 1
     tol = 100 * kappa(a) * EPS
     np.testing.assert_allclose(fit.coef, ref.params, rtol=tol)   # statsmodels OLS params
     np.testing.assert_allclose(fit.stderr, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels OLS bse
@@ -182,8 +182,8 @@ def test_blocked_paths_hand_over_when_ill_conditioned():
         quick = whiten.fit_linear(x, y, method="blocked", refine=False)
     with whiten.options(block_rows=500), pytest.warns(whiten.ConditioningWarning, match="condition number 2"):
         careful = whiten.fit_linear(x, y, method="blocked", refine=True)
-    assert quick.health.path == "blocked-tsqr" and quick.health.refinement_steps == 0
-    assert careful.health.path == "blocked-tsqr->householder"
+    assert quick.health.method == "blocked-tsqr" and quick.health.refinement_steps == 0
+    assert careful.health.method == "blocked-tsqr->householder"
     assert any("redone by Householder" in note for note in careful.health.notes)
     tan_t = np.linalg.norm(y - a @ ref) / np.linalg.norm(a @ ref)
     tol = 100 * k * EPS * (1 + k * tan_t)

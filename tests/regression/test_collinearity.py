@@ -174,14 +174,14 @@ def test_inputs_not_modified_and_results_frozen():
     import json
 
     json.dumps(d)  # serialisable
-    assert d["names"][0] == "(intercept)" and d["health"]["path"] == "householder"
+    assert d["names"][0] == "(intercept)" and d["health"]["method"] == "householder"
 
 
 def test_compensated_and_longdouble_residuals_agree_with_exact_arithmetic():
     """Residual kernels against exact rational arithmetic (Python fractions, standard library)."""
     from fractions import Fraction
 
-    from whiten.regression import _extended
+    from whiten.linalg import compensated as _extended
 
     rng = np.random.default_rng(0)
     a = rng.standard_normal((7, 4)) * 1e3
@@ -217,13 +217,13 @@ def test_spread_out_near_dependence_found_by_singular_values():
     latest = max(j for j in range(n) if ratio(np.delete(k, j, axis=1)) > 1e-4)
     with pytest.warns(RankDeficiencyWarning, match=f"rank 29 of 30.*'x{latest}' set aside"):
         fit = whiten.fit_linear(a, y, intercept=False, rank_tol=1e-4)
-    assert fit.health.set_aside == (f"x{latest}",) and "svd-rank" in fit.health.path
+    assert fit.health.set_aside == (f"x{latest}",) and "svd-rank" in fit.health.method
 
 
 def test_residual_arithmetic_without_wider_longdouble(monkeypatch):
     """Where numpy.longdouble is plain double (Windows, ARM64 macOS), "longdouble" requests fall
     back to compensated arithmetic rather than silently losing the extra digits."""
-    from whiten.regression import _extended
+    from whiten.linalg import compensated as _extended
 
     monkeypatch.setattr(_extended, "LONGDOUBLE_IS_WIDER", False)
     assert _extended.extended_kind("longdouble") == "compensated"

@@ -103,7 +103,7 @@ def test_many_row_path_on_repeated_sets(name):
     with whiten.options(block_rows=1000), warnings.catch_warnings():
         warnings.simplefilter("error")
         fit = whiten.fit_linear(xk, yk, intercept=cert["intercept"], method="blocked", refine=True)
-    assert fit.health.path.startswith("blocked")
+    assert fit.health.method.startswith("blocked")
     assert lre(fit.coef, cert["coef"]).min() >= 9
     n, p = cert["n"], len(cert["coef"])
     if cert["rsd"] != 0:

@@ -24,7 +24,7 @@ def filler_covariance() -> np.ndarray:
 @pytest.fixture(scope="session")
 def filler_model() -> whiten.Gaussian:
     mean = np.array([4.2, 6.5, 12.0, 1.1])
-    return whiten.Gaussian(mean, filler_covariance(), names=SENSORS)
+    return whiten.Gaussian(mean, filler_covariance(), columns=SENSORS)
 
 
 @pytest.fixture(scope="session")

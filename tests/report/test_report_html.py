@@ -247,13 +247,13 @@ def test_monitoring_report_names_a_redundant_sensor():
     x = np.column_stack([x, x[:, 0] + x[:, 1] + 1e-5 * rng.normal(size=600)])
     names = ["feed_a", "feed_b", "return_temp", "line_total"]
     with pytest.warns(whiten.ConditioningWarning, match="digits"):
-        g = whiten.Gaussian(x.mean(axis=0), np.cov(x.T), names=names)
+        g = whiten.Gaussian(x.mean(axis=0), np.cov(x.T), columns=names)
     s = whiten.monitor.score(g, x[:20], phase="known")
     html = monitoring_report(s, g, charts=False).to_html()
     page = check_self_contained(html)
     assert "Nearly redundant sensors" in html and "linear combination of" in html
     assert page.tiles["alarms"]["value"] == str(int(s.alarm.sum()))
-    clean = whiten.Gaussian(np.zeros(3), np.eye(3), names=names[:3])
+    clean = whiten.Gaussian(np.zeros(3), np.eye(3), columns=names[:3])
     html = monitoring_report(whiten.monitor.score(clean, x[:5, :3], phase="known"), clean, charts=False).to_html()
     assert "No sensor is a linear combination" in html
     assert page.images == []

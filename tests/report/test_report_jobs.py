@@ -72,7 +72,7 @@ def _loglik_case(seed: int = 5):
 def job_reports() -> dict:
     fit = _fit(extruder_table())
     mean, cov, x = _loglik_case()
-    g = whiten.Gaussian(mean, cov, names=SENSORS)
+    g = whiten.Gaussian(mean, cov, columns=SENSORS)
     ev = g.evaluate(x, missing="marginalize")
     return {"regression": regression_report(fit, response="die_pressure").to_html(),
             "likelihood": likelihood_report(ev, g).to_html(),
@@ -147,7 +147,7 @@ def test_likelihood_report_total_matches_scipy():
     from scipy import stats
 
     mean, cov, x = _loglik_case()
-    g = whiten.Gaussian(mean, cov, names=SENSORS)
+    g = whiten.Gaussian(mean, cov, columns=SENSORS)
     ev = g.evaluate(x, missing="marginalize")
     page = check_self_contained(likelihood_report(ev, g).to_html())
     # outside reference: scipy.stats.multivariate_normal on complete rows, its marginal on the partial one

@@ -101,5 +101,5 @@ def redundancy(factor: Factor, tol: float, columns: Sequence[str] | None = None)
     """
     m = factor.matrix()
     m[np.diag_indices_from(m)] -= float(factor.jitter)
-    names = list(columns) if columns is not None else factor.names
-    return pivoted_cholesky(m, tol=tol, names=list(names) if names is not None else None)
+    names = list(columns) if columns is not None else factor.columns
+    return pivoted_cholesky(m, tol=tol, columns=list(names) if names is not None else None)

@@ -62,7 +62,7 @@ class Baseline:
         if factor.dim != mean.shape[0] or len(cols) != mean.shape[0]:
             raise InputError(f"baseline: mean ({mean.shape[0]}), factor ({factor.dim}) and columns "
                              f"({len(cols)}) disagree in length")
-        if factor.names != cols:
+        if factor.columns != cols:
             factor = Factor(factor.lower, factor.health, cols)
         self._mean = mean
         self._factor = factor
@@ -123,7 +123,7 @@ class Baseline:
     @property
     def gaussian(self) -> Gaussian:
         if self._gaussian is None:
-            self._gaussian = Gaussian(self._mean, self._factor, names=self._columns)
+            self._gaussian = Gaussian(self._mean, self._factor, columns=self._columns)
         return self._gaussian
 
     def __repr__(self) -> str:

@@ -20,7 +20,8 @@ from .._numerics import from_json_number
 from .._version import __version__
 from ..errors import InputError, ModelFileError, NotPositiveDefiniteError
 from ..io.modelfile import jsonable, read_model, utc_now, write_model
-from ..linalg.factor import Factor, _health_of
+from ..linalg.factor import Factor
+from ..linalg.health import _health_of
 from .health import BaselineHealth
 
 __all__ = ["MODEL_FORMAT", "ESTIMATORS", "payload_of", "save_payload", "read_payload"]
@@ -104,7 +105,7 @@ def read_payload(path: str | os.PathLike) -> dict:
     if not np.isfinite(mean).all() or not np.isfinite(low).all():
         raise bad("mean or factor holds non-finite values")
     try:
-        f0 = Factor.from_lower(low, names=cols, jitter=health.jitter)
+        f0 = Factor.from_lower(low, columns=cols, jitter=health.jitter)
     except (InputError, NotPositiveDefiniteError) as exc:
         raise bad(f"the factor is not a valid Cholesky factor ({exc})") from None
     f = Factor(low, _health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)

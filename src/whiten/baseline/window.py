@@ -15,7 +15,8 @@ import math
 
 import numpy as np
 
-from ..linalg.factor import Factor, _health_of
+from ..linalg.factor import Factor
+from ..linalg.health import _health_of
 
 __all__ = ["fold"]
 
@@ -28,7 +29,7 @@ def fold(mean: np.ndarray, factor: Factor, wsum: float, x: np.ndarray, sign: int
     NotPositiveDefiniteError
         A downdate by rows that were not part of the fit.
     """
-    columns = factor.names
+    columns = factor.columns
     scatter = Factor(factor.lower * math.sqrt(wsum - 1.0), factor.health, columns)
     mu = mean.astype(np.float64).copy()
     w = float(wsum)

@@ -54,7 +54,7 @@ def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
         out.append(f"written: {b.created_utc}")
     out += health_lines(b)
     corr = correlation(b)
-    rep = pivoted_cholesky(corr, tol=tol, names=b.columns)
+    rep = pivoted_cholesky(corr, tol=tol, columns=b.columns)
     if rep.full_rank:
         out.append(f"near-redundant sensors: none (each keeps more than {tol:g} of its variance unexplained "
                    "by the others)")

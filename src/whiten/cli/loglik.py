@@ -107,7 +107,7 @@ def _read_mean(path: str, names: list[str]) -> np.ndarray:
 
 def _model(args):
     from ..gaussian import Gaussian
-    from ..linalg.factor import cholesky
+    from ..linalg.cholesky import cholesky
 
     if args.baseline is not None:
         if args.cov is not None:
@@ -120,12 +120,12 @@ def _model(args):
                              "(whiten.load_baseline is missing); pass --mean FILE --cov FILE instead")
         b = loader(args.baseline)
         names = list(b.columns)
-        return Gaussian(b.mean, b.factor, names=names), names
+        return Gaussian(b.mean, b.factor, columns=names), names
     if args.cov is None:
         raise InputError("--mean needs --cov FILE (the covariance matrix as a square CSV)")
     cov, names = _read_cov(args.cov)
     mean = _read_mean(args.mean, names)
-    return Gaussian(mean, cholesky(cov, names=names), names=names), names
+    return Gaussian(mean, cholesky(cov, columns=names), columns=names), names
 
 
 def run(args) -> int:
@@ -138,7 +138,7 @@ def run(args) -> int:
         check_writable(report, force=args.force, what="report")
     g, names = _model(args)
     # streamed into a temporary sibling, renamed into place only when complete
-    res = loglik_file(g, args.data, args.output, names=names, force=args.force, keep_rows=bool(report))
+    res = loglik_file(g, args.data, args.output, columns=names, force=args.force, keep_rows=bool(report))
     total, evaluated, partial, empty, rows = res.total, res.evaluated, res.partial, res.empty, res.rows
     note = f"; {partial} with missing values evaluated on their marginal" if partial else ""
     note += f"; {empty} with no values skipped" if empty else ""

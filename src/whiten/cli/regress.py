@@ -113,7 +113,7 @@ def _report(fit, args, preds) -> str:
     pct = f"{100 * args.level:g}%"
     lines.append(f"-- coefficients, each with its {pct} interval --")
     ci = fit.conf_int(args.level)
-    pred_pos = {n: i for i, n in enumerate(fit.predictor_names)}
+    pred_pos = {n: i for i, n in enumerate(fit.columns)}
     wname = max(len(n) for n in fit.names)
     for i, name in enumerate(fit.names):
         est = fit.coef[i]
@@ -145,8 +145,8 @@ def _report(fit, args, preds) -> str:
     ref = (f"{h.refinement_steps} refinement step(s) with {h.residual_arithmetic} residuals, "
            f"{'converged' if h.refinement_converged else 'stopped'} (last correction {h.last_correction:.1g})"
            if h.refinement_steps else "no refinement")
-    lines.append(f"  solve: {h.path}; {ref}")
-    lines.append(f"  rank {h.rank} of {h.columns} columns")
+    lines.append(f"  solve: {h.method}; {ref}")
+    lines.append(f"  rank {h.rank} of {h.n_columns} columns")
     for note in h.notes:
         lines.append(f"  note: {note}")
     lines.append("")
@@ -176,10 +176,10 @@ def _chart(fit, path: str, force: bool) -> None:
     ax.set_ylabel("residual")
     ax.set_title("residuals against fitted")
     ax = axes[1]
-    if fit.ridge is None and fit._r is not None:
+    if fit.influence_available:
         inf = fit.influence()
         ax.scatter(inf.leverage, inf.studentized_external, s=10, color="#86bbd8")
-        p = len(fit._fit_cols)
+        p = fit.rank  # the columns fitted: for a fit with influence measures, rank == their number
         ax.axvline(2 * p / fit.nobs, color="#f26419", lw=0.8, ls="--", label="2p/n")
         ax.axhline(0.0, color="0.4", lw=0.8)
         ax.set_xlabel("leverage")
@@ -193,7 +193,7 @@ def _chart(fit, path: str, force: bool) -> None:
     if panels == 4:
         r = fit.ridge
         ax = axes[2]
-        for j, nm in enumerate(fit.predictor_names):
+        for j, nm in enumerate(fit.columns):
             ax.plot(r.grid, r.paths[:, j], label=nm)
         ax.axvline(r.penalty, color="0.3", ls=":", lw=1)
         ax.set_xscale("log")

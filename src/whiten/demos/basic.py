@@ -38,7 +38,7 @@ def run(out: Path, *, force: bool = False) -> list[str]:
 
     mean = x.mean(axis=0)
     cov = np.cov(x.T)
-    g = Gaussian(mean, cov, names=NAMES)
+    g = Gaussian(mean, cov, columns=NAMES)
     hot = np.array([825.0, 803.0, 793.0])
     d = g.mahalanobis(hot)
     lines = [
@@ -51,11 +51,11 @@ def run(out: Path, *, force: bool = False) -> list[str]:
     ]
     x4 = np.column_stack([x, avg])
     cov4 = np.cov(x4.T)
-    rep = pivoted_cholesky(cov4, names=NAMES + ["tc_avg12"], tol=1e-10)
+    rep = pivoted_cholesky(cov4, columns=NAMES + ["tc_avg12"], tol=1e-10)
     with warnings.catch_warnings():
         # the demo reports the repair itself, in its own words
         warnings.simplefilter("ignore", NumericalWarning)
-        f4 = cholesky(cov4, names=NAMES + ["tc_avg12"])
+        f4 = cholesky(cov4, columns=NAMES + ["tc_avg12"])
     lines += [
         "With the software channel tc_avg12 added, the covariance is singular:",
         f"  numerical rank {rep.rank} of {rep.dim}; " + "; ".join(rep.describe()),

@@ -193,7 +193,7 @@ def run(out: Path, *, force: bool = False) -> list[str]:
         f"uncertainty of {naive.stderr[2]:.2g} s instead of {stau:.2g} s: correlated noise carries less "
         "information than its sample count suggests (the red ellipse is too small).",
         f"Numerical health: the whitened Jacobian has condition {fit.health.cond:.3g} "
-        f"(about {fit.health.digits_lost:.1f} of 16 digits lost); the noise covariance factor keeps about "
+        f"(about {fit.health.digits_lost_2norm:.1f} of 16 digits lost); the noise covariance factor keeps about "
         f"{factor.health.digits_trusted:.0f} digits.",
         f"Charts: {', '.join(files)}.",
         CAUTION,

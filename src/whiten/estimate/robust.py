@@ -37,7 +37,8 @@ import numpy as np
 from scipy import stats
 
 from ..errors import ConditioningWarning, InputError, NotPositiveDefiniteError
-from ..linalg.factor import Factor, cholesky
+from ..linalg.cholesky import cholesky
+from ..linalg.factor import Factor
 from .sample import factor_from_r
 from .streaming import block_state
 

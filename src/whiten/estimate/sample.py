@@ -27,7 +27,9 @@ from .._settings import current
 from .._warn import warn
 from .._numerics import EPS
 from ..errors import ConditioningWarning, InputError, NotPositiveDefiniteError
-from ..linalg.factor import Factor, _health_of, cholesky
+from ..linalg.cholesky import cholesky
+from ..linalg.factor import Factor
+from ..linalg.health import _health_of
 from ..linalg.pivoted import pivoted_cholesky
 from .streaming import Block, ScatterState, accumulate
 
@@ -104,7 +106,7 @@ def check_scatter(state: ScatterState, names: Sequence[str], *, dependent: bool 
             "Leave them out with columns=[...]")
     if not dependent:
         return
-    rep = pivoted_cholesky(s, names=list(names))
+    rep = pivoted_cholesky(s, columns=list(names))
     if not rep.full_rank:
         parts = "; ".join(rep.describe())
         raise InputError(
@@ -145,7 +147,7 @@ def _gram_factor(state: ScatterState, names: Sequence[str]) -> tuple[Factor | No
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConditioningWarning)
         try:
-            f = cholesky(cov, jitter=False, names=list(names))
+            f = cholesky(cov, jitter=False, columns=list(names))
         except NotPositiveDefiniteError:
             return None, math.inf
     return f, f.digits_lost
@@ -204,4 +206,4 @@ def covariance_factor(fit: ScatterFit, names: Sequence[str]) -> Factor:
     if fit.gram_factor is not None:
         _conditioning_warning(fit.gram_factor, "the covariance")
         return fit.gram_factor
-    return cholesky(st.scatter() / div, names=list(names))
+    return cholesky(st.scatter() / div, columns=list(names))

@@ -22,9 +22,10 @@ import math
 from typing import Iterable, Iterator, NamedTuple
 
 import numpy as np
-from scipy.linalg import blas, lapack
 
 from ..errors import InputError
+from ..linalg.qr import gram
+from ..linalg.qr import upper_r as _upper_r  # estimate.shrinkage reads it from here
 
 __all__ = ["ScatterState", "Block", "block_state", "merge", "TreeReducer", "reduce_states"]
 
@@ -100,18 +101,6 @@ class ScatterState:
         return cls(kind, 0, 0.0, np.array(shift, dtype=np.float64), np.zeros(p), mat)
 
 
-def _upper_r(a: np.ndarray) -> np.ndarray:
-    """R factor (k x p, k = min(rows, p)) of a Householder QR of ``a`` (overwritten)."""
-    m, p = a.shape
-    k = min(m, p)
-    if k == 0:
-        return np.zeros((0, p))
-    qr, _tau, _work, info = lapack.dgeqrf(a, overwrite_a=1)
-    if info != 0:  # pragma: no cover - only on invalid arguments
-        raise InputError(f"dgeqrf failed with info={info}")
-    return np.triu(qr[:k])
-
-
 def block_state(values: np.ndarray, weights: np.ndarray | None, shift: np.ndarray, kind: str) -> ScatterState:
     """State of one block of rows (two passes over the block, which is in cache).
 
@@ -145,8 +134,7 @@ def block_state(values: np.ndarray, weights: np.ndarray | None, shift: np.ndarra
         y *= np.sqrt(weights)[:, None]
     if kind == "gram":
         # y.T is C-ordered (p, m); dsyrk with trans=0 forms y.T @ y (upper triangle)
-        s = blas.dsyrk(1.0, y.T, trans=0, lower=0)
-        s = np.triu(s) + np.triu(s, 1).T
+        s = gram(y)
         return ScatterState("gram", m, wsum, shift, mu, s)
     return ScatterState("qr", m, wsum, shift, mu, _upper_r(y))
 

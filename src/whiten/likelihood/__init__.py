@@ -1,6 +1,8 @@
 """Gaussian likelihoods for calibration pipelines: log-likelihood, gradients, calibrate()."""
 
-from .calibrate import CalibrationFit, JacobianHealth, ProfileInterval, calibrate, profile_interval
+from .calibrate import calibrate
+from .profile import profile_interval
+from .results import CalibrationFit, JacobianHealth, ProfileInterval
 from .gradients import loglik_grad_cov, loglik_grad_mean
 from .loglik import LikelihoodSummary, gaussian_loglik
 

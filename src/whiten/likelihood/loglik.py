@@ -31,8 +31,10 @@ from .._settings import current
 from .._validate import as_float_array, as_rows
 from .._records import fields_to_dict
 from ..errors import InputError, NotPositiveDefiniteError
-from ..linalg.factor import Factor, FactorHealth, cholesky
+from ..linalg.cholesky import cholesky
+from ..linalg.factor import Factor, FactorHealth
 from ..linalg.structured import StructuredCovariance
+from ..linalg.triangular import stack_solve_lower
 
 __all__ = ["gaussian_loglik", "LikelihoodSummary", "as_covariance"]
 
@@ -113,21 +115,6 @@ def _finish(chi2, logdet, n, health, one, details=True):
     return ll, LikelihoodSummary(ll, chi2, int(n), p, lp, logdet, health)
 
 
-def _stack_solve_lower(lower: np.ndarray, r: np.ndarray) -> np.ndarray:
-    """``L^{-1} r`` for stacks: lower (..., n, n), r (..., n), batch shapes broadcast.
-
-    scipy >= 1.15 broadcasts ``solve_triangular`` over leading axes; older
-    versions fall back to ``numpy.linalg.solve`` (an LU of a triangular matrix,
-    still a solve and still without a per-matrix Python loop).
-    """
-    from scipy.linalg import solve_triangular
-
-    try:
-        return solve_triangular(lower, r[..., None], lower=True, check_finite=False)[..., 0]
-    except ValueError:  # pragma: no cover - scipy < 1.15
-        return np.linalg.solve(lower, r[..., None])[..., 0]
-
-
 def _first_failing(a: np.ndarray) -> tuple[tuple[int, ...], int | None]:
     """Index of the first matrix in a stack that does not factor (error path only)."""
     for idx in np.ndindex(a.shape[:-2]):
@@ -182,7 +169,7 @@ def _batched(resid: Any, cov: np.ndarray, mean: Any, return_details: bool):
         raise NotPositiveDefiniteError(
             f"cov[{idx}]: is not positive definite{extra}; factor it with whiten.cholesky(cov[{idx}]) "
             "to see why, or repair it before stacking", pivot=neg) from None
-    z = _stack_solve_lower(lower, r)
+    z = stack_solve_lower(lower, r)
     chi2 = np.einsum("...i,...i->...", z, z)
     logdet = 2.0 * np.sum(np.log(np.diagonal(lower, axis1=-2, axis2=-1)), axis=-1)
     chi2 = np.broadcast_to(chi2, batch)
@@ -198,7 +185,7 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
     ----------
     resid : array_like or DataFrame, shape (n,), (N, n) or (..., n)
         Residuals (observed minus predicted). A DataFrame's columns are matched
-        to the covariance's names when it has them.
+        to the covariance's columns when it has them.
     cov : array_like (n, n), Factor, structured covariance, or array_like (..., n, n)
         A 2-D matrix is factored with :func:`whiten.cholesky` (disclosed jitter
         as usual); a Factor or structured covariance (:func:`whiten.diagonal`,
@@ -267,7 +254,7 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
     n = f.dim
     index = None
     if hasattr(resid, "columns"):
-        rows, _, index = as_rows(resid, n, names=f.names, name="resid")
+        rows, _, index = as_rows(resid, n, names=f.columns, name="resid")
         one, batch = False, (rows.shape[0],)
     else:
         r, _, _ = as_float_array(resid, name="resid", ndim=tuple(range(1, 33)))

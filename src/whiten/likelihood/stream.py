@@ -53,22 +53,22 @@ class LoglikFileSummary:
 
 
 def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: str | os.PathLike, *,
-                names: Sequence[str] | None = None, chunksize: int | None = None, force: bool = False,
+                columns: Sequence[str] | None = None, chunksize: int | None = None, force: bool = False,
                 keep_rows: bool = False) -> LoglikFileSummary:
     """Write ``row,loglik,d2,n_observed`` for every row of a table file under a Gaussian.
 
     Parameters
     ----------
     model : whiten.Gaussian
-        The mean and covariance; its ``names`` pick the file's columns.
+        The mean and covariance; its ``columns`` pick the file's columns.
     data_path : str, PathLike or whiten.io.tables.Table
         CSV/TSV (maybe compressed) or Parquet file; columns not in the model
         are ignored.
     output_path : str or PathLike
         The CSV written, atomically (a temporary sibling renamed into place);
         never the input file.
-    names : sequence of str, optional
-        The model's variables in its order (default ``model.names``).
+    columns : sequence of str, optional
+        The model's variables in its order (default ``model.columns``).
     chunksize : int, optional
         Rows read at a time (default 100000).
     force : bool
@@ -91,14 +91,14 @@ def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: s
     --------
     >>> import os, tempfile, whiten
     >>> from whiten.likelihood.stream import loglik_file
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.0], [0.0, 1.0]], names=["a", "b"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.0], [0.0, 1.0]], columns=["a", "b"])
     >>> d = tempfile.mkdtemp(); src = os.path.join(d, "x.csv")
     >>> _ = open(src, "w").write("a,b\\n0,0\\n1,\\n,\\n")
     >>> s = loglik_file(g, src, os.path.join(d, "ll.csv"))
     >>> s.rows, s.evaluated, s.partial, s.empty
     (3, 2, 1, 1)
     """
-    names = list(model.names if names is None else names)
+    names = list(model.columns if columns is None else columns)
     table = data_path if isinstance(data_path, Table) else open_table(data_path)
     out = check_writable(output_path, force=force)
     if same_file(out, table.path):

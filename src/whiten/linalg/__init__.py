@@ -1,6 +1,7 @@
 """Factorizations and solves. Imports only ``errors``, ``_validate`` and ``_settings``."""
 
-from .factor import Factor, FactorHealth, cholesky
+from .cholesky import cholesky
+from .factor import Factor, FactorHealth
 from .pivoted import RankReport, pivoted_cholesky
 from .structured import (BlockDiagonalCovariance, DiagonalCovariance, KroneckerCovariance, LowRankPlusDiagonal,
                          StructuredCovariance, block_diagonal, diagonal, kronecker, low_rank_plus_diagonal)

@@ -1,7 +1,8 @@
 """Cholesky factor of a symmetric positive definite matrix: factor once, then ask.
 
-:func:`cholesky` validates a matrix, factors it (with disclosed jitter only when
-the plain factorization fails) and returns a :class:`Factor`, which owns every
+:func:`~whiten.linalg.cholesky.cholesky` validates a matrix, factors it (with
+disclosed jitter only when the plain factorization fails) and returns a
+:class:`Factor`, which owns every
 operation the rest of the library needs: ``solve``, ``whiten``, ``quad``,
 ``logdet``, rank-one ``update``/``downdate``, and the diagonal of the inverse as
 a *reported* quantity. Layers above never call LAPACK themselves.
@@ -9,152 +10,18 @@ a *reported* quantity. Layers above never call LAPACK themselves.
 
 from __future__ import annotations
 
-import dataclasses
 import math
 from typing import Any, Sequence
 
 import numpy as np
 from scipy.linalg import blas, lapack
 
+from .._numerics import EPS
 from .._settings import current
-from .._validate import as_square
-from .._warn import warn
-from ..errors import ConditioningWarning, InputError, JitterWarning, NotPositiveDefiniteError
+from ..errors import InputError, NotPositiveDefiniteError
+from .health import FactorHealth, _factor_scaled, _health_of, _PendingHealth
 
-__all__ = ["Factor", "FactorHealth", "cholesky"]
-
-_EPS = float(np.finfo(np.float64).eps)
-
-
-@dataclasses.dataclass(frozen=True)
-class FactorHealth:
-    """Numerical health of a factorization.
-
-    Attributes
-    ----------
-    rcond : float
-        LAPACK ``dpocon`` estimate of ``1 / cond_1(m)`` for the matrix actually
-        factored, ``m = a + jitter * I``.
-    rcond_scaled : float
-        The same estimate for ``m`` scaled to unit diagonal. Cholesky solves are
-        accurate relative to this one (van der Sluis, 1969), so it drives
-        ``digits_lost``: a covariance such as ``diag(1, 1e-11)`` has a tiny
-        ``rcond`` but loses no digits.
-    digits_lost : float
-        ``log10(1 / rcond_scaled)``: decimal digits a solve may lose.
-    jitter : float
-        Absolute amount added to the diagonal (0.0 when none).
-    jitter_relative : float
-        ``jitter / mean(diag(a))``.
-    method : str
-        ``"cholesky"``, ``"cholesky+jitter"``, ``"updated"`` or ``"given"``.
-    """
-
-    rcond: float
-    rcond_scaled: float
-    digits_lost: float
-    jitter: float
-    jitter_relative: float
-    method: str
-
-    @property
-    def digits_trusted(self) -> float:
-        """Roughly how many significant decimal digits a solve keeps."""
-        return max(0.0, -math.log10(_EPS) - self.digits_lost)
-
-    def to_dict(self) -> dict:
-        return dataclasses.asdict(self) | {"digits_trusted": self.digits_trusted}
-
-
-def _pow2_scale(diag: np.ndarray) -> np.ndarray:
-    """Powers of two close to diag**-0.5 (1 where diag <= 0).
-
-    Scaling by powers of two is exact in binary floating point, so the factor of
-    the scaled matrix maps back to the factor of the original without rounding.
-    """
-    d = np.where(diag > 0, diag, 1.0)
-    return np.exp2(-np.round(0.5 * np.log2(d)))
-
-
-def _pocon(lower: np.ndarray, anorm: float) -> float:
-    if anorm == 0 or not np.isfinite(anorm):
-        return 0.0
-    rc, info = lapack.dpocon(lower, anorm, uplo="L")
-    return float(rc) if info == 0 else 0.0
-
-
-def _digits_lost(rcond: float) -> float:
-    return math.inf if rcond <= 0 else max(0.0, -math.log10(rcond))
-
-
-def _scale_columns_and_norms(ms: np.ndarray, s: np.ndarray) -> tuple[float, float]:
-    """Scale the columns of ``ms = S m`` by s in place (so ``ms = S m S``), in column
-    slabs, and return the 1-norms of ``m`` and of ``S m S`` read off each slab
-    while it is in cache.
-
-    No p x p temporary and no BLAS call: numpy and scipy may each load their
-    own OpenBLAS, and a numpy matrix-vector product just before ``dpotrf``
-    leaves numpy's worker threads spinning on the cores the factorization
-    needs (measured: ``dpotrf`` at p=2000 twice as slow right after one).
-    ``|m_ij| = |ms_ij| / (s_i s_j)`` exactly, since s holds powers of two.
-    """
-    p = ms.shape[0]
-    width = max(1, (1 << 17) // max(p, 1))  # slabs of about 1 MB
-    inv_s = 1.0 / s
-    anorm = anorm_s = 0.0
-    for j0 in range(0, p, width):
-        j1 = min(p, j0 + width)
-        slab = ms[:, j0:j1]
-        slab *= s[None, j0:j1]
-        blk = np.abs(slab)
-        anorm_s = max(anorm_s, float(blk.sum(axis=0).max()))
-        blk *= inv_s[:, None]
-        anorm = max(anorm, float((blk.sum(axis=0) * inv_s[j0:j1]).max()))
-    return anorm, anorm_s
-
-
-def _factor_scaled(m: np.ndarray):
-    """Factor m through its (power-of-two) unit-diagonal scaling; m is not modified.
-
-    Returns ``(lower, scale, info, rcond_scaled, anorm)``: ``lower`` is the factor
-    of m (None on failure), ``scale`` the diagonal scaling s with m_s = S m S,
-    ``anorm`` the 1-norm of m (for the unscaled condition estimate, which is
-    computed only when asked for). The scaled copy is factored in place, so the
-    only n x n array made is that copy.
-    """
-    s = _pow2_scale(np.diag(m).copy())
-    ms = np.multiply(m, s[:, None], order="F")
-    anorm, anorm_s = _scale_columns_and_norms(ms, s)
-    c, info = lapack.dpotrf(ms, lower=1, clean=1, overwrite_a=1)
-    if info != 0:
-        return None, s, int(info), 0.0, anorm
-    rc_s = _pocon(c, anorm_s)
-    c /= s[:, None]  # exact: s holds powers of two
-    return c, s, 0, rc_s, anorm
-
-
-@dataclasses.dataclass(frozen=True)
-class _PendingHealth:
-    """A factor's health before the unscaled condition estimate is made.
-
-    ``digits_lost`` (from the scaled estimate, which every factorization makes)
-    is known at once; the unscaled ``rcond`` is a reported quantity, so its
-    ``dpocon`` (a fifth of a p=2000 factorization) runs on first request.
-    """
-
-    rcond_scaled: float
-    anorm: float
-    jitter: float
-    jitter_relative: float
-    method: str
-
-    @property
-    def digits_lost(self) -> float:
-        return _digits_lost(self.rcond_scaled)
-
-    def resolve(self, lower: np.ndarray) -> FactorHealth:
-        return FactorHealth(_pocon(lower, self.anorm), self.rcond_scaled, self.digits_lost,
-                            self.jitter, self.jitter_relative, self.method)
+__all__ = ["Factor", "FactorHealth"]
 
 
 def _name(names: Sequence[str] | None, k: int) -> str:
@@ -175,7 +42,7 @@ class Factor:
     rcond : float
     digits_lost : float
     health : FactorHealth
-    names : list of str or None
+    columns : list of str or None
     dim : int
 
     Examples
@@ -200,7 +67,7 @@ class Factor:
         self._health = health
         self._names = list(names) if names is not None else None
         if self._names is not None and len(self._names) != lower.shape[0]:
-            raise InputError(f"names: expected {lower.shape[0]} names, got {len(self._names)}")
+            raise InputError(f"columns: expected {lower.shape[0]} names, got {len(self._names)}")
         if matrix is not None:
             matrix = np.array(matrix, dtype=np.float64, copy=True) if _copy else matrix
             matrix.setflags(write=False)
@@ -210,7 +77,7 @@ class Factor:
 
     # ------------------------------------------------------------------ build
     @classmethod
-    def from_lower(cls, lower: Any, *, names: Sequence[str] | None = None, jitter: float = 0.0) -> "Factor":
+    def from_lower(cls, lower: Any, *, columns: Sequence[str] | None = None, jitter: float = 0.0) -> "Factor":
         """Wrap an existing lower-triangular factor (checked: square, finite, positive diagonal).
 
         Raises
@@ -227,6 +94,7 @@ class Factor:
             raise InputError("lower: contains NaN or infinite entries")
         if np.any(np.triu(arr, 1) != 0):
             raise InputError("lower: has non-zero entries above the diagonal; pass a lower-triangular factor")
+        names = columns
         d = np.diag(arr)
         if np.any(d <= 0):
             k = int(np.flatnonzero(d <= 0)[0])
@@ -245,7 +113,8 @@ class Factor:
         return self._lower.shape[0]
 
     @property
-    def names(self) -> list[str] | None:
+    def columns(self) -> list[str] | None:
+        """Column (variable) labels, or None."""
         return None if self._names is None else list(self._names)
 
     @property
@@ -457,7 +326,7 @@ class Factor:
             for k in range(p):
                 rkk = lt[k, k]
                 r2 = rkk * rkk + sign * w[k] * w[k]
-                if not (r2 > (64 * _EPS * rkk) ** 2) or not np.isfinite(r2):
+                if not (r2 > (64 * EPS * rkk) ** 2) or not np.isfinite(r2):
                     raise NotPositiveDefiniteError(
                         f"downdate would lose positive definiteness at pivot {_name(self._names, k)} "
                         f"(remaining pivot {r2:.3g} vs {rkk * rkk:.3g} before); the rows removed were "
@@ -491,160 +360,3 @@ class Factor:
         names = None if self._names is None else [self._names[i] for i in idx]
         h = _PendingHealth(rc_s, anorm, self.jitter, self._health.jitter_relative, self._health.method)
         return Factor(lower, h, names, matrix=m, _copy=False)
-
-
-def _health_of(lower: np.ndarray, jitter: float, jitter_rel: float, method: str) -> FactorHealth:
-    """Condition estimates for a factor whose matrix is L L^T (O(p^2) beyond the product)."""
-    m = lower @ lower.T
-    rc = _pocon(np.asfortranarray(lower), float(np.abs(m).sum(axis=0).max()))
-    s = _pow2_scale(np.diag(m).copy())
-    ls = lower * s[:, None]
-    ms = m * s[:, None] * s[None, :]
-    rc_s = _pocon(np.asfortranarray(ls), float(np.abs(ms).sum(axis=0).max()))
-    return FactorHealth(rc, rc_s, _digits_lost(rc_s), float(jitter), float(jitter_rel), method)
-
-
-def _min_eig(ms: np.ndarray) -> float:
-    from scipy.linalg import eigvalsh
-
-    return float(eigvalsh(ms, subset_by_index=[0, 0], check_finite=False)[0])
-
-
-def cholesky(a: Any, *, jitter: str | bool | float = "auto", names: Sequence[str] | None = None) -> Factor:
-    """Cholesky factor of a symmetric positive (semi-)definite matrix, with disclosed repair.
-
-    Parameters
-    ----------
-    a : array_like or pandas.DataFrame, shape (p, p)
-        Symmetric to ``whiten.get_options().symmetry_rtol`` relative to ``max|a|``.
-        A DataFrame's column names become the factor's ``names``.
-    jitter : {"auto", False} or float
-        ``"auto"`` (default): factor ``a`` as given; only if that fails, add an
-        increasing ladder of diagonal jitter ``jitter_start * mean(diag a)``,
-        ... up to ``jitter_ceiling * mean(diag a)`` (see :func:`whiten.options`),
-        with a :class:`~whiten.errors.JitterWarning` giving the amount.
-        ``False``: never add jitter; failure raises. A float: add exactly this
-        absolute amount to the diagonal (recorded, no warning).
-    names : sequence of str, optional
-        Variable names used in messages and results.
-
-    Returns
-    -------
-    Factor
-
-    Raises
-    ------
-    InputError
-        Not square, empty, non-finite, non-numeric or not symmetric.
-    NotPositiveDefiniteError
-        Clearly indefinite (smallest eigenvalue of the unit-diagonal matrix below
-        ``-indefinite_tol``), a negative variance, ``jitter=False`` on a singular
-        matrix, or still failing at the jitter ceiling.
-
-    Warns
-    -----
-    JitterWarning
-        When jitter was added (amount, relative amount, condition afterwards).
-    ConditioningWarning
-        When ``digits_lost`` exceeds ``whiten.get_options().digits_warn``.
-
-    Notes
-    -----
-    Definiteness is judged on the matrix scaled to unit diagonal (by powers of
-    two, which is exact), so a valid covariance with a wide dynamic range such
-    as ``diag(1, 1e-11)`` factors without jitter or warning. Cost: p^3/3 flops
-    for the factorization and O(p^2) for each condition estimate (``dpocon``);
-    the eigenvalue check runs only when the plain factorization fails.
-
-    Examples
-    --------
-    >>> import numpy as np, whiten
-    >>> f = whiten.cholesky(np.diag([1.0, 1e-11]))
-    >>> f.jitter, bool(f.digits_lost < 1)
-    (0.0, True)
-    """
-    opts = current()
-    m, frame_names = as_square(a, name="a")
-    names = list(names) if names is not None else frame_names
-    if names is not None and len(names) != m.shape[0]:
-        raise InputError(f"names: expected {m.shape[0]} names, got {len(names)}")
-    diag = np.diag(m)
-    if np.any(diag < 0):
-        k = int(np.argmin(diag))
-        raise NotPositiveDefiniteError(
-            f"a: diagonal entry {_name(names, k)} is negative ({diag[k]:.3g}); a covariance has "
-            "non-negative variances. Check the sign convention or the input",
-            pivot=k, value=float(diag[k]))
-    mean_diag = float(diag.mean())
-    if mean_diag == 0:
-        raise NotPositiveDefiniteError("a: is the zero matrix; nothing to factor", pivot=0, value=0.0)
-
-    if jitter is not False and jitter != "auto":
-        if isinstance(jitter, str) or not np.isfinite(float(jitter)) or float(jitter) < 0:
-            raise InputError(f"jitter: expected 'auto', False or a non-negative float, got {jitter!r}")
-        amount = float(jitter)
-        mj = m + amount * np.eye(m.shape[0])
-        lower, _, info, rc_s, anorm = _factor_scaled(mj)
-        if info != 0:
-            raise NotPositiveDefiniteError(
-                f"a + {amount:.3g}*I is not positive definite (failed at pivot {_name(names, info - 1)}); "
-                "use a larger jitter or jitter='auto'", pivot=info - 1)
-        return _finish(lower, mj, rc_s, anorm, amount, amount / mean_diag, "cholesky" if amount == 0 else "cholesky+jitter",
-                       names, opts)
-
-    lower, sc, info, rc_s, anorm = _factor_scaled(m)
-    if info == 0:
-        return _finish(lower, m, rc_s, anorm, 0.0, 0.0, "cholesky", names, opts)
-
-    # The plain factorization failed at pivot info-1. Indefinite or merely singular?
-    pivot = info - 1
-    ms = m * sc[:, None] * sc[None, :]
-    lam = _min_eig(ms)
-    lam_rel = lam / float(np.diag(ms).mean())
-    zero_var = [k for k in range(m.shape[0]) if diag[k] == 0]
-    zv = f"; zero variance in {', '.join(_name(names, k) for k in zero_var)}" if zero_var else ""
-    if lam_rel < -opts.indefinite_tol:
-        raise NotPositiveDefiniteError(
-            f"a: is indefinite: the unit-diagonal matrix has eigenvalue {lam_rel:.3g} "
-            f"(tolerance {-opts.indefinite_tol:g}); factorization failed at pivot {_name(names, pivot)}. "
-            "Jitter would hide a real error here: check how the matrix was built "
-            "(pairwise-deleted covariances and hand-edited entries are common causes)",
-            pivot=pivot, value=lam_rel)
-    if jitter is False:
-        raise NotPositiveDefiniteError(
-            f"a: is singular to working precision (positive semi-definite, smallest eigenvalue "
-            f"{lam_rel:.3g} of the unit-diagonal matrix; failed at pivot {_name(names, pivot)}{zv}). "
-            "Use jitter='auto' to repair with disclosure, whiten.pivoted_cholesky(a) to find the "
-            "dependent variables, or a shrinkage estimate",
-            pivot=pivot, value=lam_rel)
-    rel = opts.jitter_start
-    while rel <= opts.jitter_ceiling * (1 + 1e-12):
-        amount = rel * mean_diag
-        mj = m + amount * np.eye(m.shape[0])
-        lower, _, info, rc_s, anorm = _factor_scaled(mj)
-        if info == 0:
-            f = _finish(lower, mj, rc_s, anorm, amount, rel, "cholesky+jitter", names, opts, conditioning_warning=False)
-            warn(JitterWarning,
-                 f"matrix is singular to working precision (failed at pivot {_name(names, pivot)}{zv}); "
-                 f"added jitter {amount:.3g} to the diagonal ({rel:.1e} of the mean diagonal). "
-                 f"Condition after repair: rcond {f.rcond:.3g}, about {f.digits_lost:.1f} digits lost. "
-                 "Results describe a + jitter*I; find dependent variables with whiten.pivoted_cholesky")
-            return f
-        rel *= opts.jitter_factor
-    raise NotPositiveDefiniteError(
-        f"a: could not be factored even with jitter {opts.jitter_ceiling:.1e} of the mean diagonal "
-        f"(failed at pivot {_name(names, pivot)}{zv}). Remove dependent variables (see "
-        "whiten.pivoted_cholesky), use a shrinkage estimate, or raise whiten.options(jitter_ceiling=...)",
-        pivot=pivot, value=lam_rel)
-
-
-def _finish(lower, m, rc_s, anorm, amount, rel, method, names, opts, conditioning_warning=True) -> Factor:
-    h = _PendingHealth(rc_s, anorm, float(amount), float(rel), method)
-    f = Factor(lower, h, names, matrix=m, _copy=False)  # both arrays were made for this factor
-    if conditioning_warning and h.digits_lost > opts.digits_warn:
-        warn(ConditioningWarning,
-             f"matrix is ill-conditioned: rcond {rc_s:.3g} (unit-diagonal scaling), about "
-             f"{h.digits_lost:.1f} of ~16 significant digits may be lost in solves "
-             f"(threshold {opts.digits_warn:g}). Consider removing near-redundant variables "
-             "(whiten.pivoted_cholesky names them) or a shrinkage estimate")
-    return f

@@ -10,7 +10,7 @@ from scipy.linalg import lapack, solve_triangular
 
 from .._validate import as_square
 from ..errors import InputError, NotPositiveDefiniteError
-from .factor import _pow2_scale
+from .health import _pow2_scale
 
 __all__ = ["RankReport", "pivoted_cholesky"]
 
@@ -69,7 +69,7 @@ class RankReport:
         return out
 
 
-def pivoted_cholesky(a: Any, *, tol: float | None = None, names: Sequence[str] | None = None) -> RankReport:
+def pivoted_cholesky(a: Any, *, tol: float | None = None, columns: Sequence[str] | None = None) -> RankReport:
     """Numerical rank of a positive semi-definite matrix and the dependent variables.
 
     Parameters
@@ -81,7 +81,8 @@ def pivoted_cholesky(a: Any, *, tol: float | None = None, names: Sequence[str] |
         Default ``100 * p * eps`` (about 2e-14 p): only exact dependence up to
         rounding. Pass e.g. ``1e-8`` to also catch near-dependence (a variable
         with less than 1e-8 of its variance unexplained by the others).
-    names : sequence of str, optional
+    columns : sequence of str, optional
+        Column (variable) labels.
 
     Returns
     -------
@@ -105,16 +106,16 @@ def pivoted_cholesky(a: Any, *, tol: float | None = None, names: Sequence[str] |
     >>> import numpy as np, whiten
     >>> x = np.array([[1., 2., 3.], [4., 5., 6.], [7., 8., 10.], [2., 0., 2.]])
     >>> x = np.column_stack([x, x[:, 0] + x[:, 1]])
-    >>> rep = whiten.pivoted_cholesky(x.T @ x, names=["a", "b", "c", "d"])
+    >>> rep = whiten.pivoted_cholesky(x.T @ x, columns=["a", "b", "c", "d"])
     >>> rep.rank
     3
     """
     m, frame_names = as_square(a, name="a")
-    names = list(names) if names is not None else frame_names
+    names = list(columns) if columns is not None else frame_names
     p = m.shape[0]
     labels = names if names is not None else [f"x{k}" for k in range(p)]
     if len(labels) != p:
-        raise InputError(f"names: expected {p} names, got {len(labels)}")
+        raise InputError(f"columns: expected {p} names, got {len(labels)}")
     diag = np.diag(m)
     if np.any(diag < 0):
         k = int(np.argmin(diag))

@@ -95,7 +95,7 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     --------
     >>> import os, tempfile, numpy as np, whiten
     >>> from whiten.monitor import charts, score
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], names=["a", "b"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], columns=["a", "b"])
     >>> s = score(g, np.random.default_rng(0).normal(size=(50, 2)), phase="known")
     >>> png = charts.distance_chart(s, os.path.join(tempfile.mkdtemp(), "d2.png"))
     >>> png.read_bytes()[:4] == b"\\x89PNG"

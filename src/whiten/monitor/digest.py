@@ -57,7 +57,7 @@ class ScoreDigest:
     --------
     >>> import numpy as np, whiten
     >>> from whiten.monitor import Scorer, ScoreDigest
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], names=["a", "b"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], columns=["a", "b"])
     >>> sc = Scorer(g, phase="known")
     >>> dig = ScoreDigest(sc.columns, attrs=sc.attrs(), chart_points=4)
     >>> x = np.random.default_rng(1).normal(size=(10, 2)); x[7] = [5.0, -5.0]

@@ -98,7 +98,7 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
     Examples
     --------
     >>> import numpy as np, whiten
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.8], [0.8, 1.0]], names=["a", "b"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.8], [0.8, 1.0]], columns=["a", "b"])
     >>> s = whiten.monitor.score(g, np.array([[1.0, 1.0], [1.0, -1.0]]), phase="known")
     >>> bool(s.d2[1] > s.d2[0]) and bool(np.allclose(s.filter(like="chain:").sum(axis=1), s.d2))
     True

@@ -70,7 +70,7 @@ def _baseline_parts(baseline: Any):
         raise InputError(f"baseline: mean has {mu.shape[0]} entries but the factor is {factor.dim} x {factor.dim}")
     cols = getattr(baseline, "columns", None)
     if cols is None:
-        cols = getattr(baseline, "names", None) or factor.names
+        cols = getattr(baseline, "columns", None) or factor.columns
     cols = [str(c) for c in cols] if cols is not None else [f"x{j}" for j in range(factor.dim)]
     m = getattr(baseline, "n", None)
     m = None if m is None else int(m)

@@ -81,7 +81,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     Examples
     --------
     >>> import os, tempfile, numpy as np, pandas as pd, whiten
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], names=["a", "b"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], columns=["a", "b"])
     >>> d = tempfile.mkdtemp(); src = os.path.join(d, "rows.csv")
     >>> pd.DataFrame({"a": [0.1, 4.0, -0.2], "b": [0.0, -4.0, 0.3]}).to_csv(src, index=False)
     >>> dig = whiten.monitor.score_file(g, src, os.path.join(d, "scores.csv"), phase="known", chunksize=2)

@@ -1,11 +1,14 @@
 """Linear regression on nearly collinear features: QR least squares, ridge, diagnostics.
 
 Public entry points: :func:`fit_linear` -> :class:`LinearFit`, :func:`influence`
--> :class:`InfluenceReport`. See :mod:`whiten.regression.linear` for the numerics.
+-> :class:`InfluenceReport`. The rooms: :mod:`~whiten.regression.design` (inputs), :mod:`~whiten.regression.solve`
+(solvers), :mod:`~whiten.regression.inference` and :mod:`~whiten.regression.diagnostics`,
+:mod:`~whiten.regression.results`, and :mod:`~whiten.regression.fit` (the entry point).
 """
 
 from .diagnostics import CollinearityReport
 from .influence import InfluenceReport, influence
-from .linear import FitHealth, LinearFit, RidgeInfo, fit_linear
+from .fit import fit_linear
+from .results import FitHealth, LinearFit, RidgeInfo
 
 __all__ = ["fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport"]

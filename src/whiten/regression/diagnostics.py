@@ -17,11 +17,10 @@ from typing import Sequence
 
 import numpy as np
 
-from .qr import tri_solve
+from .._numerics import EPS, json_number
+from ..linalg.qr import tri_solve
 
 __all__ = ["CollinearityReport", "collinearity_report", "vif_from_r", "describe_dependence"]
-
-_EPS = float(np.finfo(np.float64).eps)
 
 #: Belsley, Kuh & Welsch (1980) flag condition indices above 30 with two or
 #: more variance-decomposition proportions above 0.5.
@@ -74,17 +73,12 @@ class CollinearityReport:
         return {
             "names": list(self.names),
             "singular_values": [float(v) for v in self.singular_values],
-            "condition_indices": [_num(v) for v in self.condition_indices],
+            "condition_indices": [json_number(v) for v in self.condition_indices],
             "proportions": [[float(v) for v in row] for row in self.proportions],
             "groups": [list(g) for g in self.groups],
-            "group_indices": [_num(v) for v in self.group_indices],
+            "group_indices": [json_number(v) for v in self.group_indices],
             "sentences": list(self.sentences),
         }
-
-
-def _num(v: float):
-    v = float(v)
-    return v if math.isfinite(v) else (None if math.isnan(v) else ("inf" if v > 0 else "-inf"))
 
 
 def _join(items: list[str]) -> str:
@@ -125,7 +119,7 @@ def collinearity_report(r: np.ndarray, names: list[str], *, exact_tol: float,
         ci = np.where(s > 0, s_max / np.where(s > 0, s, 1.0), np.inf)
     # proportions: phi_jk = v_jk^2 / s_k^2; an exact zero singular value is
     # clipped at eps * s_max so the (undefined) shares go to the null direction.
-    floor = max(s_max * _EPS, np.finfo(float).tiny)
+    floor = max(s_max * EPS, np.finfo(float).tiny)
     sc = np.maximum(s, floor)
     phi = (vt ** 2) / (sc[:, None] ** 2)
     prop = phi / phi.sum(axis=0, keepdims=True)

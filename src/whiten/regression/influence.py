@@ -16,7 +16,7 @@ import numpy as np
 
 from .._settings import current
 from ..errors import InputError
-from .qr import tri_solve
+from ..linalg.qr import tri_solve
 
 __all__ = ["InfluenceReport", "influence"]
 

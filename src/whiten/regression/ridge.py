@@ -28,15 +28,17 @@ import math
 import numpy as np
 from scipy import stats
 
+from .._numerics import EPS
 from .._warn import warn
 from ..errors import InputError, NumericalWarning
-from . import linear as _lin
+from ..linalg.qr import condition_2, householder_thin, pow2_column_scale, sequential_dependence
 from .diagnostics import collinearity_report, vif_from_r
-from .qr import condition_2, householder_thin, pow2_column_scale, sequential_dependence
+from .inference import fitted_values, gaussian_loglik, read_only, scaled_condition
+from .results import FitHealth, LinearFit, RidgeInfo
+from .solve import MAX_REFINE, refine_dense
 
 __all__ = ["fit_ridge", "CRITERIA"]
 
-_EPS = float(np.finfo(np.float64).eps)
 CRITERIA = ("gcv", "loocv")
 
 
@@ -157,9 +159,9 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     sc = pow2_column_scale(norms)
     augs = aug * sc[None, :]
     q, r = householder_thin(augs)
-    if sequential_dependence(r, 10 * max(n, k) * _EPS):
+    if sequential_dependence(r, 10 * max(n, k) * EPS):
         raise InputError("ridge: with penalty 0 the predictors are rank deficient; use a positive penalty")
-    xsol, res, steps, conv, corr = _lin._refine_dense(augs, baug, q, r, "compensated", _lin.MAX_REFINE)
+    xsol, res, steps, conv, corr = refine_dense(augs, baug, q, r, "compensated", MAX_REFINE)
     beta_s = xsol * sc             # coefficients of xs
     beta = beta_s / d              # original units
     e_w = res[:n]                  # whitened residuals of the centred problem
@@ -183,42 +185,42 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     tss = float(bc @ bc)
     r2 = 1 - rss / tss if tss > 0 else math.nan
     adj = 1 - (1 - r2) * (n - int(icpt)) / dof if dof > 0 else math.nan
-    ll = _lin._loglik(design, rss, n)
+    ll = gaussian_loglik(design, rss, n)
     # unpenalised diagnostics of the design
     s_full = pow2_column_scale(np.sqrt(np.einsum("ij,ij->j", a, a)))
     _, r_full = householder_thin(a * s_full[None, :])
-    tol = 10 * max(n, design.p) * _EPS
+    tol = 10 * max(n, design.p) * EPS
     coll = collinearity_report(r_full, design.all_names, exact_tol=tol)
     vif = np.full(k, np.nan)
     if icpt and not sequential_dependence(r_full, tol):
         vif = vif_from_r(r_full, k) if k > 1 else np.ones(1)
-    cond_aug = _lin._scaled_condition(r)
-    bound = _EPS * cond_aug * (1 + cond_aug * math.sqrt(rss) / max(float(np.linalg.norm(bc - e_w)), 1e-300))
+    cond_aug = scaled_condition(r)
+    bound = EPS * cond_aug * (1 + cond_aug * math.sqrt(rss) / max(float(np.linalg.norm(bc - e_w)), 1e-300))
     digits = float(min(15.9, max(0.0, -math.log10(bound)))) if bound > 0 else 15.9
     lc = corr if math.isfinite(corr) else 1.0
-    solved = 15.6 if conv and lc <= 2 * _EPS else float(min(15.6, max(0.0, -math.log10(max(lc, _EPS)))))
-    health = _lin.FitHealth(
-        path="ridge-augmented-householder", condition_number=float(coll.condition_indices[-1]),
+    solved = 15.6 if conv and lc <= 2 * EPS else float(min(15.6, max(0.0, -math.log10(max(lc, EPS)))))
+    health = FitHealth(
+        method="ridge-augmented-householder", condition_number=float(coll.condition_indices[-1]),
         condition_number_raw=condition_2(r_full / s_full[None, :]), condition_number_fitted=cond_aug,
         error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=steps,
         refinement_converged=bool(conv), last_correction=corr, residual_arithmetic="compensated",
-        rank=design.p, columns=design.p, rank_tol=tol, set_aside=(), dependencies=(),
+        rank=design.p, n_columns=design.p, rank_tol=tol, set_aside=(), dependencies=(),
         notes=(f"penalty {lam:.6g} on {'standardized ' if standardize else ''}predictors; intercept unpenalised",))
-    info = _lin.RidgeInfo(penalty=lam, criterion=kind, standardized=bool(standardize), effective_dof=edf,
+    info = RidgeInfo(penalty=lam, criterion=kind, standardized=bool(standardize), effective_dof=edf,
                           grid=info_grid, scores=info_scores, paths=info_paths, at_edge=at_edge)
-    fitted = _lin._fitted(design, list(range(design.p)), coef)
+    fitted = fitted_values(design, list(range(design.p)), coef)
     nan = np.full(coef.shape, np.nan)
     dof_model = edf - int(icpt)
     ess = tss - rss
     fstat = (ess / dof_model) / (rss / dof) if dof_model > 0 and dof > 0 and rss > 0 else math.nan
     fp = float(stats.f.sf(fstat, dof_model, dof)) if math.isfinite(fstat) else math.nan
-    return _lin.LinearFit(
-        names=tuple(design.all_names), coef=_lin._ro(coef), stderr=_lin._ro(stderr), tvalues=_lin._ro(nan),
-        pvalues=_lin._ro(nan.copy()), residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=fstat,
+    return LinearFit(
+        names=tuple(design.all_names), coef=read_only(coef), stderr=read_only(stderr), tvalues=read_only(nan),
+        pvalues=read_only(nan.copy()), residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=fstat,
         f_pvalue=fp, loglik=ll, aic=-2 * ll + 2 * edf, bic=-2 * ll + math.log(n) * edf, nobs=n, dof=dof,
-        dof_model=dof_model, rank=design.p, vif=_lin._ro(vif), collinearity=coll, fitted=_lin._ro(fitted),
-        residuals=_lin._ro(design.y - fitted), health=health, intercept=icpt,
-        predictor_names=tuple(design.names),
+        dof_model=dof_model, rank=design.p, vif=read_only(vif), collinearity=coll, fitted=read_only(fitted),
+        residuals=read_only(design.y - fitted), health=health, intercept=icpt,
+        columns=tuple(design.names),
         weighted="gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none"),
         ridge=info, _r=None, _scale=None, _fit_cols=tuple(range(design.p)), _q=None, _wresid=e_w,
         _design=design)

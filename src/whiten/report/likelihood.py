@@ -310,17 +310,17 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
                    note="chance of a chi-square at least this large if the covariance is right")
     rep.key_figure("Reduced chi-square", float(fit.reduced_chi2), digits=4, key="reduced-chi2",
                    note="about 1 when the stated covariance fits")
-    trusted = max(0.0, 15.65 - float(h.digits_lost))
+    trusted = max(0.0, 15.65 - float(h.digits_lost_2norm))
     rep.key_figure("Digits in the parameter covariance", trusted, text=f"{trusted:.1f}", key="digits",
-                   tone="alert" if float(h.digits_lost) > current().digits_warn else "good",
+                   tone="alert" if float(h.digits_lost_2norm) > current().digits_warn else "good",
                    note=f"Jacobian condition number {format_number(h.cond, 3)}")
     rep.key_figure("Converged", bool(fit.converged), key="converged", tone="good" if fit.converged else "alert",
                    note=f"{fit.n_evals} model evaluations" if hasattr(fit, "n_evals") else "")
 
     rep.health("Jacobian", f"The whitened Jacobian at the solution has condition number "
                f"{format_number(h.cond, 3)}, so the parameter covariance may lose about "
-               f"{float(h.digits_lost):.1f} digits; derivatives: {h.jacobian}.",
-               "alert" if float(h.digits_lost) > current().digits_warn else "good")
+               f"{float(h.digits_lost_2norm):.1f} digits; derivatives: {h.jacobian}.",
+               "alert" if float(h.digits_lost_2norm) > current().digits_warn else "good")
     if h.unidentified:
         rep.health("Identifiability", f"Rank {h.rank}: not determined by the data: "
                    f"{', '.join(map(str, h.unidentified))}.", "alert")

@@ -55,7 +55,7 @@ def worst_rows(scores: Any, k: int = 5, top: int = 3):
     Examples
     --------
     >>> import numpy as np, whiten, whiten.monitor
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.0], [0.0, 1.0]], names=["inlet", "outlet"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.0], [0.0, 1.0]], columns=["inlet", "outlet"])
     >>> s = whiten.monitor.score(g, np.array([[0.1, 0.0], [0.0, 6.0], [3.0, 0.0]]), phase="known")
     >>> w = worst_rows(s, 2)
     >>> list(w.index), w["top sensors"].iloc[0].startswith("outlet")
@@ -211,7 +211,7 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
     --------
     >>> import numpy as np, whiten, whiten.monitor
     >>> from whiten.report import monitoring_report
-    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.6], [0.6, 1.0]], names=["inlet", "outlet"])
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.6], [0.6, 1.0]], columns=["inlet", "outlet"])
     >>> s = whiten.monitor.score(g, np.array([[0.1, 0.2], [4.0, -4.0]]), phase="known")
     >>> rep = monitoring_report(s, g, charts=False)
     >>> [f.value for f in rep.figures if f.key == "alarms"] == [int(s.alarm.sum())]

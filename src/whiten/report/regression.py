@@ -49,7 +49,7 @@ def coefficient_table(fit: Any, level: float = 0.95):
     _check_fit(fit)
     ci = np.asarray(fit.conf_int(level), dtype=float)
     vif = np.full(len(fit.names), np.nan)
-    pos = {n: i for i, n in enumerate(getattr(fit, "predictor_names", ()))}
+    pos = {n: i for i, n in enumerate(getattr(fit, "columns", ()))}
     fv = np.asarray(getattr(fit, "vif", np.full(len(pos), np.nan)), dtype=float)
     for i, n in enumerate(fit.names):
         if n in pos and pos[n] < fv.size:
@@ -110,7 +110,7 @@ def _ridge_figure(fit: Any):
     fig = Figure(figsize=(9.0, 3.4), dpi=100)
     FigureCanvasAgg(fig)
     ax = fig.add_subplot(1, 2, 1)
-    for j, nm in enumerate(fit.predictor_names):
+    for j, nm in enumerate(fit.columns):
         ax.plot(r.grid, r.paths[:, j], label=str(nm), linewidth=1.1)
     ax.axvline(r.penalty, color="#a0522d", linestyle=":")
     ax.set_xscale("log")
@@ -147,7 +147,7 @@ def _health(rep: Report, fit: Any) -> None:
                + f" (last correction {format_number(h.last_correction, 2)})")
     else:
         ref = "no iterative refinement"
-    rep.health("Solve", f"Route {h.path}; {ref}.", "good" if h.refinement_converged or not h.refinement_steps
+    rep.health("Solve", f"Route {h.method}; {ref}.", "good" if h.refinement_converged or not h.refinement_steps
                else "note")
     weighted = getattr(fit, "weighted", "none")
     if weighted and weighted != "none":
@@ -155,10 +155,10 @@ def _health(rep: Report, fit: Any) -> None:
                                "gls": "Generalised least squares: rows whitened by the Cholesky factor of the "
                                       "error covariance."}.get(weighted, f"Weighting {weighted}."), "plain")
     if h.set_aside:
-        rep.health("Rank", f"Rank {h.rank} of {h.columns} columns: set aside "
+        rep.health("Rank", f"Rank {h.rank} of {h.n_columns} columns: set aside "
                    f"{', '.join(map(str, h.set_aside))}. " + " ".join(map(str, h.dependencies)), "alert")
     else:
-        rep.health("Rank", f"Full rank: all {h.columns} columns were fitted.", "good")
+        rep.health("Rank", f"Full rank: all {h.n_columns} columns were fitted.", "good")
     for note in h.notes:
         rep.health("Note", str(note), "note")
     r = getattr(fit, "ridge", None)
@@ -223,7 +223,7 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
             "gls": "generalised least squares"}.get(getattr(fit, "weighted", "none"), "least squares")
     if getattr(fit, "ridge", None) is not None:
         kind = "ridge regression"
-    n_pred = len(getattr(fit, "predictor_names", ())) or len(fit.names)
+    n_pred = len(getattr(fit, "columns", ())) or len(fit.names)
     rep = Report(title or f"Regression of {what}", job="regression",
                  lede=f"{what} explained by {n_pred} predictor(s) over {fit.nobs} rows, by {kind}.",
                  provenance=provenance)

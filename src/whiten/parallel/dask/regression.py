@@ -8,7 +8,13 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from ..._numerics import EPS
 from ...errors import InputError
+from ...linalg import compensated
+from ...linalg.qr import r_of
+from ...regression.design import INTERCEPT_NAME
+from ...regression.inference import assemble
+from ...regression.solve import MAX_REFINE, RANK_POLICIES, solution_from_r
 from .common import is_dask_collection, is_dask_frame, require_dask, row_vector, tree_reduce
 
 __all__ = ["fit_linear"]
@@ -37,8 +43,6 @@ class _DaskDesign:
 
     @property
     def all_names(self) -> list:
-        from ...regression.linear import INTERCEPT_NAME
-
         return ([INTERCEPT_NAME] if self.intercept else []) + list(self.names)
 
     def _in_memory_only(self, *_args, **_kw):
@@ -79,26 +83,20 @@ def _sqrt_weights(wb, offset: int) -> np.ndarray:
 
 
 def _r_block(xb, yb, intercept, offset, names, wb=None):
-    from ...regression.qr import _r_of
-
-    return _r_of(_aug_block(xb, yb, intercept, offset, names, wb))
+    return r_of(_aug_block(xb, yb, intercept, offset, names, wb))
 
 
 def _r_stack(a, b):
-    from ...regression.qr import _r_of
-
-    return _r_of(np.asfortranarray(np.vstack([a, b])))
+    return r_of(np.asfortranarray(np.vstack([a, b])))
 
 
 def _pass_block(xb, yb, intercept, offset, names, kept, sw, x, kind, want_grad, wb=None):
     """(A^T r, r^T r) of one (weighted) block, the residual in extended precision when refining."""
-    from ...regression import _extended
-
     blk = _aug_block(xb, yb, intercept, offset, names, wb)
     ab = blk[:, kept] * sw[None, :]
     yb_ = blk[:, -1]
-    rb = yb_ - ab @ x if kind == "none" else _extended.residual(ab, x, yb_, None, kind)
-    grad = (_extended.gradient(ab, rb, kind) if kind != "none" else ab.T @ rb) if want_grad else None
+    rb = yb_ - ab @ x if kind == "none" else compensated.residual(ab, x, yb_, None, kind)
+    grad = (compensated.gradient(ab, rb, kind) if kind != "none" else ab.T @ rb) if want_grad else None
     return grad, float(rb @ rb)
 
 
@@ -180,8 +178,6 @@ def fit_linear(X: Any, y: Any, *, intercept: bool = True, weights: Any = None, r
     from dask import delayed
     import dask.array as da
 
-    from ...regression.linear import (_EPS, MAX_REFINE, RANK_POLICIES, _assemble, solution_from_r)
-
     if rank_policy not in RANK_POLICIES:
         raise InputError(f"rank_policy: choose one of {list(RANK_POLICIES)}, got {rank_policy!r}")
     if rank_policy == "minimum-norm":
@@ -195,7 +191,7 @@ def fit_linear(X: Any, y: Any, *, intercept: bool = True, weights: Any = None, r
     n, p = design.n, design.p
     if n < p:
         raise InputError(f"X: {n} rows cannot determine {p} coefficients; give at least {p} rows")
-    tol = 10.0 * max(n, p) * _EPS if rank_tol is None else float(rank_tol)
+    tol = 10.0 * max(n, p) * EPS if rank_tol is None else float(rank_tol)
     xb = list(xa.to_delayed().ravel())
     yb = list(ya.to_delayed().ravel())
     offsets = np.concatenate([[0], np.cumsum(xa.chunks[0])[:-1]]).astype(int).tolist()
@@ -247,4 +243,4 @@ def fit_linear(X: Any, y: Any, *, intercept: bool = True, weights: Any = None, r
                          "fit on the computed arrays")
     resid = sol.wresid
     fitted = ya - resid
-    return _assemble(design, sol, s, r_full, aside, tol, rank_policy, rss=last["rss"], vectors=(fitted, resid))
+    return assemble(design, sol, s, r_full, aside, tol, rank_policy, rss=last["rss"], vectors=(fitted, resid))

@@ -1,28 +1,43 @@
-"""QR building blocks for least squares: equilibration, blocked (tall-skinny) QR, rank.
+"""QR building blocks: equilibration, Householder and blocked (tall-skinny) QR, triangles, rank.
 
-Nothing here forms a Gram matrix or an inverse. The R factors are those of the
-data (Householder, LAPACK ``dgeqrf``), so condition numbers are never squared.
+Nothing here forms an inverse, and the R factors are those of the data
+(Householder, LAPACK ``dgeqrf``), so condition numbers are never squared. The
+one Gram matrix (:func:`gram`, and the first pass of :func:`cholqr2_r`) is a
+stepping stone that the callers correct or only report.
+
+These are the only QR and BLAS-3 kernels of the package: the regression,
+likelihood and streaming code and the dask engine call them instead of
+LAPACK, so every QR in whiten uses one workspace rule and one sign rule.
 """
 
 from __future__ import annotations
 
-import math
 from typing import Callable, Iterator
 
 import numpy as np
-from scipy.linalg import blas, lapack, solve_triangular
+from scipy.linalg import blas, lapack
+
+from ..errors import InputError
+
+from .triangular import condition_2, tri_rcond, tri_solve
 
 __all__ = [
     "cholqr2_r",
     "pow2_column_scale",
     "householder_thin",
+    "r_of",
+    "qr_r",
+    "upper_r",
+    "pivoted_qr_r",
+    "gram",
     "tsqr_r",
     "sequential_dependence",
+    "greedy_rank_drop",
     "tri_solve",
     "tri_rcond",
+    "condition_2",
+    "CHOLQR2_MIN_RCOND",
 ]
-
-_EPS = float(np.finfo(np.float64).eps)
 
 
 def pow2_column_scale(norms: np.ndarray) -> np.ndarray:
@@ -66,12 +81,70 @@ def householder_thin(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return q, r
 
 
-def _r_of(block: np.ndarray) -> np.ndarray:
-    """Upper-triangular (or trapezoidal) R of a block, shape (min(m, p), p)."""
+def r_of(block: np.ndarray) -> np.ndarray:
+    """Upper-triangular (or trapezoidal) R of a block, shape (min(m, p), p).
+
+    ``block`` should be Fortran-ordered; it is overwritten (a C-ordered block is
+    copied by the LAPACK wrapper and left alone).
+    """
     m, p = block.shape
     qr, _ = _geqrf(block, overwrite=True)
     k = min(m, p)
     return np.triu(qr[:k, :])
+
+
+def qr_r(a: np.ndarray) -> np.ndarray:
+    """R of a Householder QR of ``a`` (not modified), shape (min(m, p), p); signs as LAPACK leaves them."""
+    return r_of(np.array(a, dtype=np.float64, order="F", copy=True))
+
+
+def upper_r(a: np.ndarray) -> np.ndarray:
+    """R (k x p, k = min(rows, p)) of a Householder QR of ``a`` (overwritten), unsigned.
+
+    Uses the LAPACK wrapper's default (minimal) workspace, as the streaming
+    scatter states always have: the workspace decides the blocking of
+    ``dgeqrf`` and with it the last bits of R, and stored states must merge
+    with new ones bit for bit.
+
+    Raises
+    ------
+    InputError
+        Only if LAPACK rejects its arguments.
+    """
+    m, p = a.shape
+    k = min(m, p)
+    if k == 0:
+        return np.zeros((0, p))
+    qr, _tau, _work, info = lapack.dgeqrf(a, overwrite_a=1)
+    if info != 0:  # pragma: no cover - only on invalid arguments
+        raise InputError(f"dgeqrf failed with info={info}")
+    return np.triu(qr[:k])
+
+
+def pivoted_qr_r(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Column-pivoted Householder QR ``a P = Q R`` (LAPACK ``dgeqp3``): ``(R, perm)``.
+
+    ``R`` has shape (min(m, p), p) with ``|r_00| >= |r_11| >= ...``; ``perm`` holds
+    0-based column indices (``a[:, perm] = Q R``). ``a`` is not modified; Q is not formed.
+    """
+    m, p = a.shape
+    fa = np.array(a, dtype=np.float64, order="F", copy=True)
+    _, _, _, work, info = lapack.dgeqp3(fa, lwork=-1)
+    lwork = max(1, int(work[0])) if info == 0 else max(1, 3 * (p + 1))
+    qr, jpvt, _tau, _, info = lapack.dgeqp3(fa, lwork=lwork, overwrite_a=1)
+    if info != 0:  # pragma: no cover - invalid arguments only
+        raise RuntimeError(f"dgeqp3 info={info}")
+    k = min(m, p)
+    return np.triu(qr[:k, :]), np.asarray(jpvt, dtype=np.intp) - 1
+
+
+def gram(y: np.ndarray) -> np.ndarray:
+    """``y.T @ y`` (symmetric, both triangles) by BLAS ``dsyrk``, for a C-ordered ``y`` of shape (m, p).
+
+    ``y.T`` of a C-ordered array is Fortran-ordered, so ``dsyrk`` reads it without a copy.
+    """
+    s = blas.dsyrk(1.0, y.T, trans=0, lower=0)
+    return np.triu(s) + np.triu(s, 1).T
 
 
 def tsqr_r(blocks: Iterator[np.ndarray], p: int, *, fan_in: int = 32) -> np.ndarray:
@@ -88,12 +161,12 @@ def tsqr_r(blocks: Iterator[np.ndarray], p: int, *, fan_in: int = 32) -> np.ndar
     for blk in blocks:
         if blk.shape[0] == 0:
             continue
-        pending.append(_r_of(np.asfortranarray(blk)))
+        pending.append(r_of(np.asfortranarray(blk)))
         if len(pending) >= fan_in:
-            pending = [_r_of(np.asfortranarray(np.vstack(pending)))]
+            pending = [r_of(np.asfortranarray(np.vstack(pending)))]
     if not pending:
         return np.zeros((p, p))
-    r = _r_of(np.asfortranarray(np.vstack(pending))) if len(pending) > 1 else pending[0]
+    r = r_of(np.asfortranarray(np.vstack(pending))) if len(pending) > 1 else pending[0]
     if r.shape[0] < p:  # fewer rows than columns overall
         r = np.vstack([r, np.zeros((p - r.shape[0], p))])
     # fix signs so that diag(R) >= 0 (makes R unique and comparable across paths)
@@ -153,21 +226,6 @@ def cholqr2_r(blocks: Callable[[], Iterator[np.ndarray]], p: int) -> np.ndarray 
     return r / sc[None, :]               # undo the exact column scaling
 
 
-def tri_solve(r: np.ndarray, b: np.ndarray, *, trans: bool = False) -> np.ndarray:
-    """Solve ``r x = b`` (or ``r.T x = b``) for upper-triangular ``r``."""
-    return solve_triangular(r, b, lower=False, trans=1 if trans else 0, check_finite=False)
-
-
-def tri_rcond(r: np.ndarray) -> float:
-    """LAPACK ``dtrcon`` estimate of 1 / cond_1(r) for upper-triangular r (0 when singular)."""
-    if r.size == 0:
-        return 1.0
-    if not np.all(np.isfinite(r)) or np.any(np.diag(r) == 0):
-        return 0.0
-    rc, info = lapack.dtrcon(np.asfortranarray(r), norm="1", uplo="U", diag="N")
-    return float(rc) if info == 0 else 0.0
-
-
 def sequential_dependence(r: np.ndarray, tol: float) -> list[int]:
     """Columns that are (numerically) linear combinations of the columns before them.
 
@@ -218,10 +276,3 @@ def greedy_rank_drop(r: np.ndarray, kept: list[int], tol: float) -> list[int]:
             dropped.append(kept[j])
     return sorted(dropped)
 
-
-def condition_2(r: np.ndarray) -> float:
-    """2-norm condition number of an upper-triangular r from its singular values."""
-    if r.size == 0:
-        return 1.0
-    s = np.linalg.svd(r, compute_uv=False)
-    return math.inf if s[-1] == 0 else float(s[0] / s[-1])

@@ -1,4 +1,4 @@
-"""Residuals of a least-squares problem in more than double precision.
+"""Compensated (double-double) arithmetic: least-squares residuals in more than double precision.
 
 Iterative refinement (Björck, 1967) gains digits only when the residual
 ``b - r - A x`` is computed more accurately than the working precision. Two

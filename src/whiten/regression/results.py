@@ -1,0 +1,367 @@
+"""Results of a least-squares fit: :class:`LinearFit`, its :class:`FitHealth` and :class:`RidgeInfo`.
+
+A :class:`LinearFit` answers questions after the fit (intervals, predictions,
+influence, tables) from what the solver left it: the R factor of the fitted
+columns in scaled coordinates, the column scaling and the whitened residuals.
+Nothing here refits or forms a covariance matrix.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from typing import Any
+
+import numpy as np
+from scipy import stats
+
+from .._numerics import json_number, json_ready
+from .._validate import as_rows
+from ..errors import InputError
+from ..linalg.qr import tri_solve
+from .design import INTERCEPT_NAME
+from .diagnostics import CollinearityReport
+
+__all__ = ["FitHealth", "RidgeInfo", "LinearFit", "t_quantile"]
+
+
+@dataclasses.dataclass(frozen=True)
+class FitHealth:
+    """Numerical health of a least-squares fit.
+
+    Attributes
+    ----------
+    method : str
+        What ran, e.g. ``"householder"`` or ``"blocked-tsqr"``, plus any hand-over.
+    condition_number : float
+        2-norm condition number of the design (all columns, intercept included)
+        with columns scaled to unit length (Belsley's convention). This is the
+        one that governs accuracy.
+    condition_number_raw : float
+        The same for the design as given (units matter: a column in
+        nanometres next to one in kilometres makes this large harmlessly).
+    condition_number_fitted : float
+        Scaled condition number of the columns actually fitted (after any were
+        set aside).
+    error_bound : float
+        First-order bound on the relative error of the coefficients caused by
+        a relative perturbation of one unit in the last place of the data:
+        ``eps * (k + k^2 * tan(theta))`` with ``k`` the fitted condition number
+        and ``tan(theta) = ||r|| / ||A x||`` (Wedin, 1973; Higham, 2002, §20.1).
+    digits_trusted : float
+        ``-log10(error_bound)``, capped at 15.9: significant digits of the
+        coefficients that survive a change of one unit in the last digit of the
+        data (a worst-case, first-order statement about the *problem*).
+    digits_solved : float
+        Significant digits to which the problem *as given* was solved: from the
+        size of the last refinement correction (15.6 when refinement converged to
+        working precision); equal to ``digits_trusted`` when refinement was skipped.
+        With exactly known data (integers, designed levels) this is the figure
+        that counts.
+    refinement_steps : int
+    refinement_converged : bool
+    last_correction : float
+        Relative size of the last refinement correction (max-norm).
+    residual_arithmetic : str
+        ``"compensated"`` (double-double by error-free transformations),
+        ``"longdouble"`` or ``"none"`` (refinement skipped).
+    rank : int
+    n_columns : int
+        Design columns (intercept included).
+    rank_tol : float
+    set_aside : tuple of str
+        Columns not fitted because they depend on earlier ones.
+    dependencies : tuple of str
+        One plain sentence per set-aside column.
+    notes : tuple of str
+    """
+
+    method: str
+    condition_number: float
+    condition_number_raw: float
+    condition_number_fitted: float
+    error_bound: float
+    digits_trusted: float
+    digits_solved: float
+    refinement_steps: int
+    refinement_converged: bool
+    last_correction: float
+    residual_arithmetic: str
+    rank: int
+    n_columns: int
+    rank_tol: float
+    set_aside: tuple
+    dependencies: tuple
+    notes: tuple
+
+    def to_dict(self) -> dict:
+        d = dataclasses.asdict(self)
+        return {k: (list(v) if isinstance(v, tuple) else json_number(v)) for k, v in d.items()}
+
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class RidgeInfo:
+    """How a ridge penalty was applied or chosen.
+
+    Attributes
+    ----------
+    penalty : float
+        The penalty ``lambda`` used (on the predictors as given, or on their
+        standardized versions when ``standardized``).
+    criterion : str
+        ``"fixed"``, ``"gcv"`` or ``"loocv"``.
+    standardized : bool
+    effective_dof : float
+        Trace of the hat matrix, intercept included.
+    grid : ndarray or None
+        Penalties tried (log grid) when chosen by a criterion.
+    scores : ndarray or None
+        The criterion at each grid point.
+    paths : ndarray or None, shape (len(grid), n_predictors)
+        Coefficients (original units) along the grid.
+    at_edge : bool
+        The chosen penalty is the first or last of the grid.
+    """
+
+    penalty: float
+    criterion: str
+    standardized: bool
+    effective_dof: float
+    grid: np.ndarray | None = None
+    scores: np.ndarray | None = None
+    paths: np.ndarray | None = None
+    at_edge: bool = False
+
+    def to_dict(self) -> dict:
+        return {
+            "penalty": self.penalty, "criterion": self.criterion, "standardized": self.standardized,
+            "effective_dof": self.effective_dof, "at_edge": self.at_edge,
+            "grid": None if self.grid is None else _numbers(self.grid),
+            "scores": None if self.scores is None else _numbers(self.scores),
+        }
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class LinearFit:
+    """A fitted linear model with its uncertainty, diagnostics and numerical health.
+
+    Coefficient-shaped attributes are in the order of :attr:`names`: the
+    intercept (``"(intercept)"``) first when fitted, then the predictors in the
+    user's order. Columns set aside for exact collinearity carry NaN (policy
+    ``"nan"``) or are absent (policy ``"drop"``).
+
+    Attributes
+    ----------
+    names : tuple of str
+    coef, stderr, tvalues, pvalues : ndarray, shape (k,)
+    residual_sd : float
+        ``sqrt(RSS / dof)`` in whitened units (for WLS/GLS the scale of a unit-weight error).
+    r_squared, adj_r_squared : float
+        Centred when there is an intercept, uncentred otherwise (the convention
+        of NIST StRD and of common practice); for WLS/GLS on the whitened model.
+    f_statistic, f_pvalue : float
+        Test that every coefficient except the intercept is zero.
+    loglik, aic, bic : float
+        Gaussian log-likelihood at the maximum-likelihood error variance;
+        ``aic = -2 loglik + 2 rank``, ``bic = -2 loglik + log(n) rank``.
+    nobs : int
+    dof : int
+        Residual degrees of freedom ``n - rank`` (for ridge ``n - effective dof``).
+    dof_model : int
+        ``rank`` minus 1 for the intercept.
+    rank : int
+    condition_number, condition_number_raw : float
+        See :class:`FitHealth` (scaled = Belsley's unit-length columns; raw = as given).
+    vif : ndarray, shape (n_predictors,)
+        Centred VIF of each predictor (intercept excluded; for WLS/GLS, of the
+        whitened predictors, i.e. with weighted centring); ``inf`` for a column in
+        an exact linear dependence. NaN for every
+        predictor when ``intercept=False``: the centred VIF presumes a model
+        with an intercept, and the uncentred variant mostly measures the
+        distance of a column's mean from zero.
+    collinearity : CollinearityReport
+    fitted, residuals : ndarray, shape (n,)
+        In the units of ``y`` (unweighted).
+    health : FitHealth
+    ridge : RidgeInfo or None
+    """
+
+    names: tuple
+    coef: np.ndarray
+    stderr: np.ndarray
+    tvalues: np.ndarray
+    pvalues: np.ndarray
+    residual_sd: float
+    r_squared: float
+    adj_r_squared: float
+    f_statistic: float
+    f_pvalue: float
+    loglik: float
+    aic: float
+    bic: float
+    nobs: int
+    dof: float
+    dof_model: float
+    rank: int
+    vif: np.ndarray
+    collinearity: CollinearityReport
+    fitted: np.ndarray
+    residuals: np.ndarray
+    health: FitHealth
+    intercept: bool
+    columns: tuple
+    weighted: str
+    ridge: RidgeInfo | None = None
+    # private: what predict() and influence() need (scaled coordinates)
+    _r: np.ndarray | None = dataclasses.field(default=None, repr=False)
+    _scale: np.ndarray | None = dataclasses.field(default=None, repr=False)
+    _fit_cols: tuple = dataclasses.field(default=(), repr=False)
+    _q: np.ndarray | None = dataclasses.field(default=None, repr=False)
+    _wresid: np.ndarray | None = dataclasses.field(default=None, repr=False)
+    _design: Any = dataclasses.field(default=None, repr=False)
+    _cov_rows: np.ndarray | None = dataclasses.field(default=None, repr=False)
+
+    def __repr__(self) -> str:
+        h = self.health
+        return (f"LinearFit(nobs={self.nobs}, rank={self.rank}/{h.n_columns}, r_squared={self.r_squared:.6g}, "
+                f"residual_sd={self.residual_sd:.6g}, condition_number={h.condition_number:.3g}, "
+                f"digits_trusted={h.digits_trusted:.1f}, digits_solved={h.digits_solved:.1f}, method={h.method!r}"
+                + (f", ridge={self.ridge.penalty:.4g}" if self.ridge is not None else "") + ")")
+
+    # ------------------------------------------------------------ simple views
+    @property
+    def condition_number(self) -> float:
+        return self.health.condition_number
+
+    @property
+    def condition_number_raw(self) -> float:
+        return self.health.condition_number_raw
+
+    def conf_int(self, level: float = 0.95) -> np.ndarray:
+        """Two-sided intervals ``coef -/+ t_{dof} * stderr``, shape (k, 2).
+
+        Raises
+        ------
+        InputError
+            ``level`` not strictly between 0 and 1.
+        """
+        q = t_quantile(level, self.dof)
+        return np.column_stack([self.coef - q * self.stderr, self.coef + q * self.stderr])
+
+    def predict(self, x: Any, interval: str | None = None, level: float = 0.95):
+        """Predicted mean at new rows, optionally with an interval.
+
+        Parameters
+        ----------
+        x : array_like or DataFrame, shape (m, n_predictors) or (n_predictors,)
+            Predictors only (the intercept is added). A DataFrame is matched by
+            column name.
+        interval : {None, "confidence", "prediction"}
+            ``"confidence"``: for the mean response; ``"prediction"``: for one
+            new observation of unit weight (adds ``residual_sd**2``).
+        level : float
+
+        Returns
+        -------
+        ndarray, shape (m,) when ``interval`` is None; otherwise a DataFrame
+        with columns ``fitted``, ``lower``, ``upper``, ``std_error``.
+
+        Notes
+        -----
+        The standard error of ``a^T b`` is ``residual_sd * ||R^{-T} (s * a)||``, a
+        triangular solve per row (no covariance matrix is formed). Columns set
+        aside for collinearity are ignored: the prediction is valid where the new
+        rows obey the same dependence.
+        """
+        if interval not in (None, "confidence", "prediction"):
+            raise InputError(f"interval: choose None, 'confidence' or 'prediction', got {interval!r}")
+        rows, one, index = as_rows(x, len(self.columns), names=list(self.columns), name="x")
+        design = np.column_stack([np.ones(rows.shape[0]), rows]) if self.intercept else rows
+        cols = list(self._fit_cols)
+        beta = self._coef_fitted()
+        mean = design[:, cols] @ beta
+        if interval is None:
+            return float(mean[0]) if one else mean
+        if self._r is None:
+            raise InputError("predict: intervals are not available for this fit (ridge by criterion)")
+        z = tri_solve(self._r, (design[:, cols] * self._scale[None, :]).T, trans=True)
+        se = self.residual_sd * np.sqrt(np.einsum("ij,ij->j", z, z))
+        if interval == "prediction":
+            se = np.sqrt(se ** 2 + self.residual_sd ** 2)
+        q = t_quantile(level, self.dof)
+        import pandas as pd
+
+        return pd.DataFrame({"fitted": mean, "lower": mean - q * se, "upper": mean + q * se, "std_error": se},
+                            index=index)
+
+    def _coef_fitted(self) -> np.ndarray:
+        full = dict(zip(self.names, self.coef))
+        all_names = ([INTERCEPT_NAME] if self.intercept else []) + list(self.columns)
+        return np.array([full[all_names[c]] for c in self._fit_cols])
+
+    @property
+    def influence_available(self) -> bool:
+        """Whether :meth:`influence` applies: an unpenalised fit that kept its R (not ridge, not minimum-norm)."""
+        return self.ridge is None and self._r is not None
+
+    def influence(self):
+        """Leverage, studentized residuals, Cook's distance and DFBETAS (see :func:`whiten.influence`)."""
+        from .influence import influence
+
+        return influence(self)
+
+    def to_frame(self):
+        """One row per coefficient: estimate, std_error, t_ratio, p_value, low_95, high_95, vif."""
+        import pandas as pd
+
+        ci = self.conf_int(0.95)
+        vif = np.full(len(self.names), np.nan)
+        pred_pos = {n: i for i, n in enumerate(self.columns)}
+        for i, n in enumerate(self.names):
+            if n in pred_pos:
+                vif[i] = self.vif[pred_pos[n]]
+        return pd.DataFrame({
+            "estimate": self.coef, "std_error": self.stderr, "t_ratio": self.tvalues, "p_value": self.pvalues,
+            "low_95": ci[:, 0], "high_95": ci[:, 1], "vif": vif,
+        }, index=pd.Index(list(self.names), name="term"))
+
+    def to_dict(self) -> dict:
+        """JSON-serialisable summary (NaN as null, infinities as the strings "inf"/"-inf")."""
+        ci = self.conf_int(0.95)
+        return {
+            "names": list(self.names),
+            "coef": _numbers(self.coef), "stderr": _numbers(self.stderr),
+            "tvalues": _numbers(self.tvalues), "pvalues": _numbers(self.pvalues),
+            "conf_int_95": [_numbers(r) for r in ci],
+            "columns": list(self.columns), "vif": _numbers(self.vif),
+            "residual_sd": json_number(self.residual_sd), "r_squared": json_number(self.r_squared),
+            "adj_r_squared": json_number(self.adj_r_squared),
+            "f_statistic": json_number(self.f_statistic), "f_pvalue": json_number(self.f_pvalue),
+            "loglik": json_number(self.loglik), "aic": json_number(self.aic), "bic": json_number(self.bic),
+            "nobs": int(self.nobs), "dof": json_number(self.dof), "dof_model": json_number(self.dof_model),
+            "rank": int(self.rank), "intercept": bool(self.intercept), "weighted": self.weighted,
+            "condition_number": json_number(self.condition_number),
+            "condition_number_raw": json_number(self.condition_number_raw),
+            "health": self.health.to_dict(),
+            "collinearity": self.collinearity.to_dict(),
+            "ridge": None if self.ridge is None else self.ridge.to_dict(),
+        }
+
+
+def t_quantile(level: float, dof: float) -> float:
+    """Two-sided Student-t quantile for ``level`` (NaN when ``dof <= 0``); checks ``level``."""
+    try:
+        level = float(level)
+    except (TypeError, ValueError):
+        raise InputError(f"level: expected a number between 0 and 1, got {level!r}") from None
+    if not 0 < level < 1:
+        raise InputError(f"level: must be strictly between 0 and 1 (e.g. 0.95), got {level}")
+    if not dof > 0:
+        return math.nan
+    return float(stats.t.ppf(0.5 + level / 2, dof))
+
+
+def _numbers(a) -> list:
+    """An array as a flat list of numbers in the project's JSON rule."""
+    return json_ready(np.asarray(a, dtype=float).ravel())
