@@ -30,15 +30,42 @@ __all__ = [
 ]
 
 # --- regression (issue: regression) re-exports go below this line ---
-from .regression import CollinearityReport, FitHealth, InfluenceReport, LinearFit, RidgeInfo, fit_linear, influence
+from .regression import (
+    CollinearityReport,
+    FitHealth,
+    InfluenceReport,
+    LinearFit,
+    RidgeInfo,
+    fit_linear,
+    influence,
+)
+
 __all__ += ["fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport"]
 
 # --- likelihood (issue: likelihoods) re-exports go below this line ---
-from .likelihood import (CalibrationFit, JacobianHealth, LikelihoodSummary, ProfileInterval, calibrate,
-                         gaussian_loglik, loglik_grad_cov, loglik_grad_mean, profile_interval)
-from .linalg.structured import (BlockDiagonalCovariance, DiagonalCovariance, KroneckerCovariance,
-                                LowRankPlusDiagonal, StructuredCovariance, block_diagonal, diagonal, kronecker,
-                                low_rank_plus_diagonal)
+from .likelihood import (
+    CalibrationFit,
+    JacobianHealth,
+    LikelihoodSummary,
+    ProfileInterval,
+    calibrate,
+    gaussian_loglik,
+    loglik_grad_cov,
+    loglik_grad_mean,
+    profile_interval,
+)
+from .linalg.structured import (
+    BlockDiagonalCovariance,
+    DiagonalCovariance,
+    KroneckerCovariance,
+    LowRankPlusDiagonal,
+    StructuredCovariance,
+    block_diagonal,
+    diagonal,
+    kronecker,
+    low_rank_plus_diagonal,
+)
+
 __all__ += ["gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_grad_cov", "calibrate",
             "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval",
             "StructuredCovariance", "DiagonalCovariance", "LowRankPlusDiagonal", "BlockDiagonalCovariance",
@@ -46,13 +73,23 @@ __all__ += ["gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_
 
 # --- baseline / monitoring re-exports go below this line ---
 from .baseline import Baseline, BaselineHealth, fit_baseline, load_baseline
+
 __all__ += ["Baseline", "BaselineHealth", "fit_baseline", "load_baseline"]
 from . import monitor
+
 __all__ += ["monitor"]
 
 # --- report re-exports go below this line ---
 from . import report
-from .report import Provenance, Report, calibration_report, likelihood_report, monitoring_report, regression_report
+from .report import (
+    Provenance,
+    Report,
+    calibration_report,
+    likelihood_report,
+    monitoring_report,
+    regression_report,
+)
+
 __all__ += ["report", "Report", "Provenance", "monitoring_report", "regression_report", "likelihood_report",
             "calibration_report"]
 

@@ -5,24 +5,17 @@ from __future__ import annotations
 import dataclasses
 from typing import Any
 
-import numpy as np
+from ._numerics import json_ready
 
 __all__ = ["fields_to_dict"]
 
 
 def fields_to_dict(record: Any) -> dict:
-    """The public fields of a dataclass record: arrays as lists, nested records through their ``to_dict``.
+    """The public fields of a dataclass record in the project's JSON rule (:mod:`whiten._numerics`).
 
-    Fields whose names start with ``_`` (private working state) are left out.
+    Arrays become lists, nested records their ``to_dict``, NaN ``None`` and
+    infinities ``"inf"``/``"-inf"``. Fields whose names start with ``_``
+    (private working state) are left out.
     """
-    out = {}
-    for f in dataclasses.fields(record):
-        if f.name.startswith("_"):
-            continue
-        v = getattr(record, f.name)
-        if isinstance(v, np.ndarray):
-            v = v.tolist()
-        elif hasattr(v, "to_dict") and not isinstance(v, dict):
-            v = v.to_dict()
-        out[f.name] = v
-    return out
+    return json_ready({f.name: getattr(record, f.name) for f in dataclasses.fields(record)
+                       if not f.name.startswith("_")})

@@ -12,7 +12,7 @@ import numpy as np
 from ._validate import as_float_array, as_rows, nonfinite_error
 from .errors import ConditioningWarning, InputError
 from .linalg.cholesky import cholesky
-from .linalg.factor import Factor, _factor_scaled, _health_of
+from .linalg.factor import Factor, factor_scaled, health_of
 
 __all__ = ["Gaussian", "RowEvaluation"]
 
@@ -286,7 +286,7 @@ class Gaussian:
             raise InputError("conditional: every variable is given; nothing left to describe")
         order = np.concatenate([ia, ib])
         m = self._factor.matrix()[np.ix_(order, order)]
-        lower, _, info, _, _ = _factor_scaled(m)
+        lower, _, info, _, _ = factor_scaled(m)
         if info != 0:  # pragma: no cover - permutation of a factored matrix
             raise InputError("conditional: permuted covariance failed to factor")
         k = ia.size
@@ -295,7 +295,7 @@ class Gaussian:
         z = f11.solve_lower(vals - self._mean[ia])
         mu = self._mean[ib] + l21 @ z
         msub = l22 @ l22.T
-        h = _health_of(l22, self._factor.jitter, self._factor.health.jitter_relative, "schur")
+        h = health_of(l22, self._factor.jitter, self._factor.health.jitter_relative, "schur")
         names = None if self._names is None else [self._names[i] for i in ib]
         return Gaussian(mu, Factor(l22, h, names, matrix=msub), columns=names)
 

@@ -185,7 +185,12 @@ def _cached(clean: Cleaner, src: Source) -> tuple[Callable[[], Iterator[Block]],
 
 def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseline:
     from ..estimate.sample import check_scatter
-    from ..estimate.shrinkage import SHRINKAGE_METHODS, centred_fourth_moment, shrinkage_intensity, shrunk_factor
+    from ..estimate.shrinkage import (
+        SHRINKAGE_METHODS,
+        centred_fourth_moment,
+        shrinkage_intensity,
+        shrunk_factor,
+    )
     from ..estimate.streaming import accumulate
 
     if rule not in SHRINKAGE_METHODS:

@@ -4,12 +4,11 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from typing import Sequence
 
 import numpy as np
 
-from .._numerics import digits_trusted
-from typing import Sequence
-
+from .._numerics import digits_trusted, json_ready
 from ..linalg.factor import Factor
 from ..linalg.pivoted import RankReport, pivoted_cholesky
 
@@ -75,7 +74,7 @@ class BaselineHealth:
         return math.inf if self.rcond_scaled <= 0 else 1.0 / self.rcond_scaled
 
     def to_dict(self) -> dict:
-        return dataclasses.asdict(self) | {"digits_trusted": self.digits_trusted}
+        return json_ready(dataclasses.asdict(self) | {"digits_trusted": self.digits_trusted})
 
     def to_frame(self):
         import pandas as pd

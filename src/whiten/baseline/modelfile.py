@@ -21,7 +21,7 @@ from .._version import __version__
 from ..errors import InputError, ModelFileError, NotPositiveDefiniteError
 from ..io.modelfile import jsonable, read_model, utc_now, write_model
 from ..linalg.factor import Factor
-from ..linalg.health import _health_of
+from ..linalg.health import health_of
 from .health import BaselineHealth
 
 __all__ = ["MODEL_FORMAT", "ESTIMATORS", "payload_of", "save_payload", "read_payload"]
@@ -108,6 +108,6 @@ def read_payload(path: str | os.PathLike) -> dict:
         f0 = Factor.from_lower(low, columns=cols, jitter=health.jitter)
     except (InputError, NotPositiveDefiniteError) as exc:
         raise bad(f"the factor is not a valid Cholesky factor ({exc})") from None
-    f = Factor(low, _health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)
+    f = Factor(low, health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)
     return dict(mean=mean, factor=f, n=n, columns=cols, estimator=est, params=dict(payload.get("params") or {}),
                 health=health, weight_sum=float(payload.get("weight_sum", n)), created_utc=payload.get("created_utc"))

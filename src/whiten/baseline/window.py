@@ -16,7 +16,7 @@ import math
 import numpy as np
 
 from ..linalg.factor import Factor
-from ..linalg.health import _health_of
+from ..linalg.health import health_of
 
 __all__ = ["fold"]
 
@@ -43,4 +43,4 @@ def fold(mean: np.ndarray, factor: Factor, wsum: float, x: np.ndarray, sign: int
         scatter = scatter.update(vecs) if sign > 0 else scatter.downdate(vecs)
     low = scatter.lower / math.sqrt(w - 1.0)
     h0 = factor.health
-    return mu, Factor(low, _health_of(low, h0.jitter, h0.jitter_relative, "updated"), columns), w
+    return mu, Factor(low, health_of(low, h0.jitter, h0.jitter_relative, "updated"), columns), w

@@ -44,8 +44,8 @@ def correlation(b) -> np.ndarray:
 
 def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
     from .. import pivoted_cholesky
-    from .baseline import health_lines
     from ..errors import InputError
+    from .baseline import health_lines
 
     if not tol > 0:
         raise InputError(f"--tol: expected a positive number, got {tol}")

@@ -8,7 +8,6 @@ import json
 import math
 import os
 
-
 from ..errors import InputError
 
 EPILOG = """\

@@ -136,6 +136,7 @@ def run(out: Path, *, force: bool = False) -> list[str]:
     import pandas as pd
 
     import whiten
+
     from ..io.atomic import write_text
     from ..monitor import charts, score
 

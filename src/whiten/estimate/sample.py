@@ -23,17 +23,18 @@ from typing import Callable, Iterator, Sequence
 
 import numpy as np
 
+from .._numerics import EPS
 from .._settings import current
 from .._warn import warn
-from .._numerics import EPS
 from ..errors import ConditioningWarning, InputError, NotPositiveDefiniteError
 from ..linalg.cholesky import cholesky
 from ..linalg.factor import Factor
-from ..linalg.health import _health_of
+from ..linalg.health import health_of
 from ..linalg.pivoted import pivoted_cholesky
 from .streaming import Block, ScatterState, accumulate
 
-__all__ = ["ScatterFit", "fit_scatter", "check_scatter", "covariance_factor", "factor_from_r"]
+__all__ = ["ScatterFit", "fit_scatter", "check_scatter", "check_rows", "covariance_factor", "factor_from_r", "gram_factor",
+           "no_rows_error", "METHODS"]
 
 METHODS = ("auto", "gram", "tsqr")
 
@@ -65,7 +66,7 @@ class ScatterFit:
     passes: int
 
 
-def _no_rows(names: Sequence[str]) -> InputError:
+def no_rows_error(names: Sequence[str]) -> InputError:
     return InputError(
         f"no complete rows to fit (columns {list(names)}); check the missing values or the column selection")
 
@@ -79,7 +80,7 @@ def check_rows(state: ScatterState, names: Sequence[str]) -> None:
     """The row count the sample covariance needs: more rows than columns."""
     p = state.dim
     if state.n == 0:
-        raise _no_rows(names)
+        raise no_rows_error(names)
     if state.wsum <= 1.0:
         raise InputError(
             f"the weights sum to {state.wsum:.6g}; frequency weights (a weight of 3 counts as three rows) "
@@ -128,7 +129,7 @@ def factor_from_r(r: np.ndarray, scale: float, names: Sequence[str] | None, meth
         raise NotPositiveDefiniteError(f"the R factor has a zero pivot at column {k}", pivot=k)
     lower = (np.sign(dg)[:, None] * r).T * scale
     lower = np.tril(lower)
-    return Factor(lower, _health_of(lower, 0.0, 0.0, method), names)
+    return Factor(lower, health_of(lower, 0.0, 0.0, method), names)
 
 
 def _conditioning_warning(f: Factor, what: str) -> None:
@@ -141,7 +142,7 @@ def _conditioning_warning(f: Factor, what: str) -> None:
              "(whiten.pivoted_cholesky names them); consider estimator='shrinkage'")
 
 
-def _gram_factor(state: ScatterState, names: Sequence[str]) -> tuple[Factor | None, float]:
+def gram_factor(state: ScatterState, names: Sequence[str]) -> tuple[Factor | None, float]:
     """Try the Gram route's factor without jitter; returns (factor or None, digits lost)."""
     cov = state.scatter() / _cov_divisor(state)
     with warnings.catch_warnings():
@@ -176,14 +177,14 @@ def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, 
     if method == "tsqr" or (method == "auto" and not reiterable):
         st, nb = accumulate(blocks(), "qr")
         if st is None or st.n == 0:
-            raise _no_rows(names)
+            raise no_rows_error(names)
         check_rows(st, names)
         return ScatterFit(st, "tsqr", None, None, nb, 1)
     st, nb = accumulate(blocks(), "gram")
     if st is None or st.n == 0:
-        raise _no_rows(names)
+        raise no_rows_error(names)
     check_rows(st, names)
-    f, digits = _gram_factor(st, names)
+    f, digits = gram_factor(st, names)
     if method == "gram" or digits <= current().gram_digits_max:
         return ScatterFit(st, "gram", digits, f, nb, 1)
     st2, _ = accumulate(blocks(), "qr", shift=st.shift)

@@ -27,9 +27,9 @@ from typing import Any
 
 import numpy as np
 
+from .._records import fields_to_dict
 from .._settings import current
 from .._validate import as_float_array, as_rows
-from .._records import fields_to_dict
 from ..errors import InputError, NotPositiveDefiniteError
 from ..linalg.cholesky import cholesky
 from ..linalg.factor import Factor, FactorHealth

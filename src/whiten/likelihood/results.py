@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from .._numerics import json_ready
 from .._records import fields_to_dict
 from ..linalg.factor import FactorHealth
 
@@ -49,7 +50,7 @@ class JacobianHealth:
         d = dataclasses.asdict(self)
         d["covariance"] = self.covariance.to_dict()
         d["unidentified"] = list(self.unidentified)
-        return d
+        return json_ready(d)
 
 
 @dataclasses.dataclass(frozen=True)

@@ -15,9 +15,14 @@ import numpy as np
 from .._settings import current
 from .._validate import as_square
 from .._warn import warn
-from ..errors import ConditioningWarning, InputError, JitterWarning, NotPositiveDefiniteError
+from ..errors import (
+    ConditioningWarning,
+    InputError,
+    JitterWarning,
+    NotPositiveDefiniteError,
+)
 from .factor import Factor, _name
-from .health import _factor_scaled, _PendingHealth
+from .health import _PendingHealth, factor_scaled
 
 __all__ = ["cholesky"]
 
@@ -102,7 +107,7 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
             raise InputError(f"jitter: expected 'auto', False or a non-negative float, got {jitter!r}")
         amount = float(jitter)
         mj = m + amount * np.eye(m.shape[0])
-        lower, _, info, rc_s, anorm = _factor_scaled(mj)
+        lower, _, info, rc_s, anorm = factor_scaled(mj)
         if info != 0:
             raise NotPositiveDefiniteError(
                 f"a + {amount:.3g}*I is not positive definite (failed at pivot {_name(names, info - 1)}); "
@@ -110,7 +115,7 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
         return _finish(lower, mj, rc_s, anorm, amount, amount / mean_diag, "cholesky" if amount == 0 else "cholesky+jitter",
                        names, opts)
 
-    lower, sc, info, rc_s, anorm = _factor_scaled(m)
+    lower, sc, info, rc_s, anorm = factor_scaled(m)
     if info == 0:
         return _finish(lower, m, rc_s, anorm, 0.0, 0.0, "cholesky", names, opts)
 
@@ -139,7 +144,7 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
     while rel <= opts.jitter_ceiling * (1 + 1e-12):
         amount = rel * mean_diag
         mj = m + amount * np.eye(m.shape[0])
-        lower, _, info, rc_s, anorm = _factor_scaled(mj)
+        lower, _, info, rc_s, anorm = factor_scaled(mj)
         if info == 0:
             f = _finish(lower, mj, rc_s, anorm, amount, rel, "cholesky+jitter", names, opts, conditioning_warning=False)
             warn(JitterWarning,

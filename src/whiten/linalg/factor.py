@@ -19,7 +19,7 @@ from scipy.linalg import blas, lapack
 from .._numerics import EPS
 from .._settings import current
 from ..errors import InputError, NotPositiveDefiniteError
-from .health import FactorHealth, _factor_scaled, _health_of, _PendingHealth
+from .health import FactorHealth, _PendingHealth, factor_scaled, health_of
 
 __all__ = ["Factor", "FactorHealth"]
 
@@ -101,7 +101,7 @@ class Factor:
             raise NotPositiveDefiniteError(
                 f"lower: diagonal entry {_name(names, k)} is {d[k]:.3g}; a Cholesky factor has a positive diagonal",
                 pivot=k, value=float(d[k]))
-        return cls(arr, _health_of(arr, jitter, 0.0, "given"), names)
+        return cls(arr, health_of(arr, jitter, 0.0, "given"), names)
 
     # ------------------------------------------------------------ attributes
     @property
@@ -343,7 +343,7 @@ class Factor:
                     w[k + 1:] = c * w[k + 1:] - s * rest
         lower = lt.T
         h = self.health
-        return Factor(lower, _health_of(lower, h.jitter, h.jitter_relative, "updated"), self._names)
+        return Factor(lower, health_of(lower, h.jitter, h.jitter_relative, "updated"), self._names)
 
     # ------------------------------------------------------------ subsets
     def subset(self, idx: Sequence[int]) -> "Factor":
@@ -354,7 +354,7 @@ class Factor:
         """
         idx = np.asarray(idx, dtype=np.intp)
         m = self.matrix()[np.ix_(idx, idx)]
-        lower, _, info, rc_s, anorm = _factor_scaled(m)
+        lower, _, info, rc_s, anorm = factor_scaled(m)
         if info != 0:  # rounding only; cannot happen for a well-formed factor
             raise NotPositiveDefiniteError(f"sub-matrix failed to factor at pivot {info - 1}", pivot=info - 1)
         names = None if self._names is None else [self._names[i] for i in idx]

@@ -15,9 +15,9 @@ import dataclasses
 import numpy as np
 from scipy.linalg import lapack
 
-from .._numerics import digits_lost_from_rcond, digits_trusted
+from .._numerics import digits_lost_from_rcond, digits_trusted, json_ready
 
-__all__ = ["FactorHealth"]
+__all__ = ["FactorHealth", "health_of", "factor_scaled"]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -58,7 +58,7 @@ class FactorHealth:
         return digits_trusted(self.digits_lost)
 
     def to_dict(self) -> dict:
-        return dataclasses.asdict(self) | {"digits_trusted": self.digits_trusted}
+        return json_ready(dataclasses.asdict(self) | {"digits_trusted": self.digits_trusted})
 
 
 def _pow2_scale(diag: np.ndarray) -> np.ndarray:
@@ -104,7 +104,7 @@ def _scale_columns_and_norms(ms: np.ndarray, s: np.ndarray) -> tuple[float, floa
     return anorm, anorm_s
 
 
-def _factor_scaled(m: np.ndarray):
+def factor_scaled(m: np.ndarray):
     """Factor m through its (power-of-two) unit-diagonal scaling; m is not modified.
 
     Returns ``(lower, scale, info, rcond_scaled, anorm)``: ``lower`` is the factor
@@ -148,7 +148,7 @@ class _PendingHealth:
                             self.jitter, self.jitter_relative, self.method)
 
 
-def _health_of(lower: np.ndarray, jitter: float, jitter_rel: float, method: str) -> FactorHealth:
+def health_of(lower: np.ndarray, jitter: float, jitter_rel: float, method: str) -> FactorHealth:
     """Condition estimates for a factor whose matrix is L L^T (O(p^2) beyond the product)."""
     m = lower @ lower.T
     rc = _pocon(np.asfortranarray(lower), float(np.abs(m).sum(axis=0).max()))

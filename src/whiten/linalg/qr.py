@@ -18,7 +18,6 @@ import numpy as np
 from scipy.linalg import blas, lapack
 
 from ..errors import InputError
-
 from .triangular import condition_2, tri_rcond, tri_solve
 
 __all__ = [

@@ -7,8 +7,8 @@ Public entry points: :func:`fit_linear` -> :class:`LinearFit`, :func:`influence`
 """
 
 from .diagnostics import CollinearityReport
-from .influence import InfluenceReport, influence
 from .fit import fit_linear
+from .influence import InfluenceReport, influence
 from .results import FitHealth, LinearFit, RidgeInfo
 
 __all__ = ["fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport"]

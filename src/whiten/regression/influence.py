@@ -14,6 +14,7 @@ import math
 
 import numpy as np
 
+from .._numerics import json_ready
 from .._settings import current
 from ..errors import InputError
 from ..linalg.qr import tri_solve
@@ -63,7 +64,7 @@ class InfluenceReport:
         return df
 
     def to_dict(self) -> dict:
-        return {k: [None if not math.isfinite(v) else float(v) for v in np.ravel(getattr(self, k))]
+        return {k: json_ready(np.ravel(getattr(self, k)))
                 for k in ("leverage", "studentized_internal", "studentized_external", "cooks_distance")}
 
 

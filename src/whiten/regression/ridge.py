@@ -31,7 +31,12 @@ from scipy import stats
 from .._numerics import EPS
 from .._warn import warn
 from ..errors import InputError, NumericalWarning
-from ..linalg.qr import condition_2, householder_thin, pow2_column_scale, sequential_dependence
+from ..linalg.qr import (
+    condition_2,
+    householder_thin,
+    pow2_column_scale,
+    sequential_dependence,
+)
 from .diagnostics import collinearity_report, vif_from_r
 from .inference import fitted_values, gaussian_loglik, read_only, scaled_condition
 from .results import FitHealth, LinearFit, RidgeInfo

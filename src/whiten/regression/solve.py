@@ -32,8 +32,17 @@ import numpy as np
 from .._numerics import EPS
 from .._settings import current
 from ..linalg import compensated
-from ..linalg.qr import (cholqr2_r, greedy_rank_drop, householder_thin, pow2_column_scale, qr_r,
-                         sequential_dependence, tri_rcond, tri_solve, tsqr_r)
+from ..linalg.qr import (
+    cholqr2_r,
+    greedy_rank_drop,
+    householder_thin,
+    pow2_column_scale,
+    qr_r,
+    sequential_dependence,
+    tri_rcond,
+    tri_solve,
+    tsqr_r,
+)
 from .design import Design
 
 __all__ = ["RANK_POLICIES", "MAX_REFINE", "BLOCKED_MAX_COND", "BLOCKED_AUTO_DIGITS", "Solution",

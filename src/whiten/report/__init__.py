@@ -6,12 +6,30 @@ self-contained (inline CSS, pictures as PNG data URIs, no scripts, nothing
 fetched), prints cleanly and reads at phone width.
 """
 
-from .document import (CAUTION_CALIBRATION, CAUTION_SCREEN, Bullets, Figure, KeyFigure, Paragraph, Report, Section,
-                       Table, TrustLine, format_number)
-from .monitoring import monitoring_report, worst_rows
+from .document import (
+                       CAUTION_CALIBRATION,
+                       CAUTION_SCREEN,
+                       Bullets,
+                       Figure,
+                       KeyFigure,
+                       Paragraph,
+                       Report,
+                       Section,
+                       Table,
+                       TrustLine,
+                       format_number,
+)
 from .likelihood import calibration_report, likelihood_report, likelihood_rows
+from .monitoring import monitoring_report, worst_rows
+from .provenance import (
+                       FileRecord,
+                       Provenance,
+                       cli_provenance,
+                       count_rows,
+                       file_record,
+                       sha256_file,
+)
 from .regression import coefficient_table, regression_report
-from .provenance import FileRecord, Provenance, cli_provenance, count_rows, file_record, sha256_file
 
 __all__ = [
     "Report", "Section", "KeyFigure", "Paragraph", "Bullets", "Table", "Figure", "TrustLine", "format_number",

@@ -22,8 +22,22 @@ from typing import Any
 
 from ..errors import InputError
 from ..io.atomic import write_text
-from .blocks import (CAUTION_CALIBRATION, CAUTION_SCREEN, TONES, Bullets, Figure, KeyFigure, Paragraph, Section,
-                     Table, TrustLine, _check_tone, _slug, _text, format_number)
+from .blocks import (
+    CAUTION_CALIBRATION,
+    CAUTION_SCREEN,
+    TONES,
+    Bullets,
+    Figure,
+    KeyFigure,
+    Paragraph,
+    Section,
+    Table,
+    TrustLine,
+    _check_tone,
+    _slug,
+    _text,
+    format_number,
+)
 from .html import render
 from .provenance import Provenance
 

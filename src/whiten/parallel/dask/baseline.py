@@ -17,9 +17,16 @@ from ..._validate import as_float_array
 from ...baseline import Baseline, array_column_names, clean_block, health_from_factor
 from ...baseline.cleaning import MISSING_POLICIES, dropped_rows_warning
 from ...errors import InputError
-from ...io.tables import select_columns
-from ...estimate.sample import METHODS, ScatterFit, _gram_factor, _no_rows, check_rows, covariance_factor
+from ...estimate.sample import (
+    METHODS,
+    ScatterFit,
+    check_rows,
+    covariance_factor,
+    gram_factor,
+    no_rows_error,
+)
 from ...estimate.streaming import Block, accumulate, merge
+from ...io.tables import select_columns
 from .common import is_dask_frame, require_dask, tree_reduce
 
 __all__ = ["fit_baseline"]
@@ -173,11 +180,11 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     out = _reduce(parts, where, names, missing, shift, kind)
     st = out["state"]
     if st is None or st.n == 0:
-        raise _no_rows(names)
+        raise no_rows_error(names)
     check_rows(st, names)
     passes = 1
     if kind == "gram":
-        f0, digits = _gram_factor(st, names)
+        f0, digits = gram_factor(st, names)
         if method == "gram" or digits <= current().gram_digits_max:
             fit = ScatterFit(st, "gram", digits, f0, out["blocks"], 1)
         else:

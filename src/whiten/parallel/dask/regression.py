@@ -15,7 +15,13 @@ from ...linalg.qr import r_of
 from ...regression.design import INTERCEPT_NAME
 from ...regression.inference import assemble
 from ...regression.solve import MAX_REFINE, RANK_POLICIES, solution_from_r
-from .common import is_dask_collection, is_dask_frame, require_dask, row_vector, tree_reduce
+from .common import (
+    is_dask_collection,
+    is_dask_frame,
+    require_dask,
+    row_vector,
+    tree_reduce,
+)
 
 __all__ = ["fit_linear"]
 
@@ -175,8 +181,8 @@ def fit_linear(X: Any, y: Any, *, intercept: bool = True, weights: Any = None, r
     influence measures and minimum-norm fits need the rows in memory and are
     refused with a message.
     """
-    from dask import delayed
     import dask.array as da
+    from dask import delayed
 
     if rank_policy not in RANK_POLICIES:
         raise InputError(f"rank_policy: choose one of {list(RANK_POLICIES)}, got {rank_policy!r}")
