@@ -1,4 +1,4 @@
-"""Cholesky Factor: accuracy against numpy/scipy, repair with disclosure, failure tiers.
+"""The Factor: accuracy against numpy/scipy, updates, whitening in blocks, the reported inverse diagonal.
 
 Tolerances are written as c * p * kappa * eps (forward errors) or c * p * eps
 (backward errors of Cholesky, which is backward stable: Higham, *Accuracy and
@@ -11,16 +11,16 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
-import pandas as pd
 import pytest
 from hypothesis import given, strategies as st
 from scipy import stats
 from scipy.spatial.distance import mahalanobis as scipy_mahalanobis
 
 import whiten
-from whiten import ConditioningWarning, InputError, JitterWarning, NotPositiveDefiniteError
+from whiten import ConditioningWarning, InputError, NotPositiveDefiniteError
 
 from ..helpers.matrices import EPS, covariance_with_scales, spd_with_condition
+
 
 CONDS = [1e1, 1e3, 1e6, 1e9]
 
@@ -118,128 +118,6 @@ def test_downdate_that_loses_definiteness_raises_naming_pivot():
         f.downdate([0.0, 2.0, 0.0])
 
 
-def test_wide_dynamic_range_is_not_singular():
-    # worked case: diag(1, 1e-11) is a valid covariance; logpdf equals the sum of the
-    # two univariate normal log-densities (reference: scipy.stats.norm)
-    cov = np.diag([1.0, 1e-11])
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")  # no jitter and no conditioning warning
-        f = whiten.cholesky(cov)
-        g = whiten.Gaussian([0.5, -2.0], f)
-    assert f.jitter == 0.0 and f.digits_lost < 1
-    x = np.array([[0.7, -2.0 + 3e-6], [-1.0, -2.0 - 1e-6]])
-    ref = stats.norm(0.5, 1.0).logpdf(x[:, 0]) + stats.norm(-2.0, np.sqrt(1e-11)).logpdf(x[:, 1])
-    assert np.allclose(g.logpdf(x), ref, rtol=1e-12)
-
-
-GRAM_RANK2 = (lambda a: a.T @ a)(np.array([[1.0, 2, 3], [4, 5, 6], [7, 8, 9]]))
-
-
-def test_rank_two_gram_is_found_by_pivoted_factorization():
-    # [[1,2,3],[4,5,6],[7,8,9]] has rank 2 (second column is the mean of the others), so its Gram does
-    rep = whiten.pivoted_cholesky(GRAM_RANK2, columns=["c1", "c2", "c3"])
-    assert rep.rank == 2 and not rep.full_rank
-    (dep,) = rep.dependent
-    assert set(rep.dependencies[dep]) == {"c1", "c2", "c3"} - {dep}
-    assert "is a linear combination of" in rep.describe()[0]
-    # coefficients reproduce the dependent column of the data (numpy check on the data itself)
-    a = np.array([[1.0, 2, 3], [4, 5, 6], [7, 8, 9]])
-    cols = {"c1": 0, "c2": 1, "c3": 2}
-    recon = sum(c * a[:, cols[n]] for n, c in rep.coefficients[dep].items())
-    assert np.allclose(recon, a[:, cols[dep]], rtol=1e-8)
-
-
-def test_rank_two_gram_refused_without_jitter():
-    with pytest.raises(NotPositiveDefiniteError, match="singular to working precision"):
-        whiten.cholesky(GRAM_RANK2, jitter=False)
-
-
-def test_singular_psd_is_jittered_with_disclosure():
-    with pytest.warns(JitterWarning, match=r"added jitter [0-9.e+-]+ to the diagonal"):
-        f = whiten.cholesky(GRAM_RANK2)
-    assert f.jitter > 0 and f.health.method == "cholesky+jitter"
-    assert f.health.jitter_relative == pytest.approx(f.jitter / np.mean(np.diag(GRAM_RANK2)))
-    target = GRAM_RANK2 + f.jitter * np.eye(3)
-    assert np.allclose(f.lower @ f.lower.T, target, rtol=0, atol=50 * EPS * np.abs(target).max())
-    assert np.allclose(f.matrix(), target, rtol=0, atol=50 * EPS * np.abs(target).max())
-
-
-def test_jitter_ceiling_is_respected():
-    # eigenvalues about 2 and -5e-10: rounding-level negative, so jitter may repair it,
-    # but only a jitter above ~5e-10 of the mean diagonal does
-    a = np.array([[1.0, 1.0], [1.0, 1.0 - 1e-9]])
-    with whiten.options(jitter_ceiling=1e-12, jitter_start=1e-13):
-        with pytest.raises(NotPositiveDefiniteError, match="even with jitter"):
-            whiten.cholesky(a)
-    with pytest.warns(JitterWarning, match="1.0e-09 of the mean diagonal"):
-        f = whiten.cholesky(a)
-    assert f.jitter == pytest.approx(1e-9 * (1 - 0.5e-9))
-
-
-def test_explicit_jitter_amount_is_added_and_recorded():
-    f = whiten.cholesky(GRAM_RANK2, jitter=1e-3)
-    assert f.jitter == 1e-3
-    assert np.allclose(f.matrix(), GRAM_RANK2 + 1e-3 * np.eye(3))
-
-
-@pytest.mark.parametrize("a", [
-    np.array([[1.0, 2.0], [2.0, 1.0]]),                 # eigenvalues 3, -1
-    np.array([[4.0, 0, 0], [0, 1.0, 0], [0, 0, -1e-3]]),
-])
-def test_indefinite_is_an_error_not_jittered(a):
-    with pytest.raises(NotPositiveDefiniteError, match="indefinite|negative"):
-        whiten.cholesky(a)
-
-
-def test_ill_conditioned_warns_once_at_the_users_line():
-    rng = np.random.default_rng(3)
-    a = spd_with_condition(6, 1e13, rng)
-    with pytest.warns(ConditioningWarning, match=r"about 1[0-9.]+ of ~16 significant digits") as rec:
-        f = whiten.cholesky(a)
-    assert rec[0].filename == __file__  # stacklevel points here, not into whiten
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")
-        for _ in range(50):  # reuse never warns again
-            f.solve(np.ones(6))
-            f.quad(np.ones(6))
-    assert f.digits_lost > 10 and f.jitter == 0.0
-
-
-def test_digits_warn_threshold_is_settable():
-    rng = np.random.default_rng(4)
-    a = spd_with_condition(4, 1e5, rng)
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")
-        whiten.cholesky(a)
-    with whiten.options(digits_warn=3.0):
-        with pytest.warns(ConditioningWarning):
-            whiten.cholesky(a)
-
-
-@pytest.mark.parametrize("bad, match", [
-    (np.array([[1.0, np.nan], [np.nan, 1.0]]), r"row 0, column 1 is nan"),
-    (np.array([[1.0, 0.0], [0.0, np.inf]]), r"row 1, column 1 is inf"),
-    (np.ones((2, 3)), r"must be square"),
-    (np.array([[2.0, 1.0], [0.5, 2.0]]), r"not symmetric: largest asymmetry"),
-    (np.zeros((0, 0)), r"empty"),
-])
-def test_bad_matrices_are_input_errors(bad, match):
-    with pytest.raises(InputError, match=match):
-        whiten.cholesky(bad)
-
-
-def test_non_numeric_dataframe_column_is_named():
-    df = pd.DataFrame({"p1": [1.0, 0.1], "p2": ["0.1", "abc"]}, index=["p1", "p2"])
-    with pytest.raises(InputError, match=r"column 'p2' is not numeric: row 1 .* 'abc'"):
-        whiten.cholesky(df)
-
-
-def test_dataframe_names_flow_into_the_factor():
-    df = pd.DataFrame([[2.0, 0.3], [0.3, 1.0]], columns=["flow", "temp"], index=["flow", "temp"])
-    f = whiten.cholesky(df)
-    assert f.columns == ["flow", "temp"]
-
-
 def test_inputs_are_never_modified():
     rng = np.random.default_rng(5)
     a = spd_with_condition(5, 1e3, rng)
@@ -269,14 +147,6 @@ def test_blocked_path_keeps_order_and_values():
     assert np.allclose(f.unwhiten(z), x, rtol=1e-9, atol=1e-12)
 
 
-def test_float32_input_is_promoted():
-    a = np.array([[2.0, 0.5], [0.5, 1.0]], dtype=np.float32)
-    f = whiten.cholesky(a)
-    assert f.lower.dtype == np.float64
-    assert f.quad(np.array([1.0, 1.0], dtype=np.float32)) == pytest.approx(
-        np.array([1.0, 1.0]) @ np.linalg.solve(a.astype(float), [1.0, 1.0]))
-
-
 def test_inv_diag_matches_numpy_inverse_diagonal():
     # reference: numpy.linalg.inv evaluated in the test
     rng = np.random.default_rng(7)
@@ -294,6 +164,15 @@ def test_from_lower_validates():
     assert f.logdet() == pytest.approx(np.log(36.0))
 
 
-def test_unknown_option_is_refused():
-    with pytest.raises(InputError, match="unknown option"):
-        whiten.set_options(jiter_ceiling=1.0)
+def test_columns_follow_the_factor_through_its_operations():
+    a = spd_with_condition(4, 10.0, np.random.default_rng(8))
+    cols = ["a", "b", "c", "d"]
+    f = whiten.cholesky(a, columns=cols)
+    assert f.update(np.ones(4)).columns == cols
+    assert f.subset([3, 1]).columns == ["d", "b"]
+    g = whiten.Factor.from_lower(f.lower, columns=cols)
+    assert g.columns == cols and g.health.method == "given"
+    with pytest.raises(InputError, match="columns: expected 4 names, got 3"):
+        whiten.Factor.from_lower(f.lower, columns=cols[:3])
+    with pytest.raises(NotPositiveDefiniteError, match="diagonal entry 'b'"):
+        whiten.Factor.from_lower(np.diag([1.0, 0.0, 1.0, 1.0]), columns=cols)

@@ -1,155 +1,62 @@
-"""Every covariance structure (and Factor itself) against its dense form.
+"""Every covariance structure (and the dense Factor) against its dense form, plus what is special to each.
 
-One contract class, ``CovarianceContract``; each structure inherits it and only
-says how to build itself and its dense matrix *independently* (from numpy, not
-from the object's own dense()). References: numpy.linalg (slogdet, solve,
-cholesky) and scipy.stats.multivariate_normal.
+The shared checks live in :mod:`tests.linalg.contract`; each class below only
+says how to build its object and, independently with numpy, its dense matrix.
+References: numpy.linalg (slogdet, solve, cholesky, cond), scipy.linalg
+(cho_factor / cho_solve) and, for the specifics, the identities named beside them.
 """
 
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
-from scipy import stats
 
 import whiten
 from whiten.errors import InputError, NotPositiveDefiniteError
 
-EPS = np.finfo(float).eps
+from .contract import EPS, CovarianceContract, spd
 
 
-def _spd(n, cond, seed):
-    """Random SPD matrix with 2-norm condition number ``cond`` (Q diag Q^T)."""
-    rng = np.random.default_rng(seed)
-    q, _ = np.linalg.qr(rng.standard_normal((n, n)))
-    ev = np.geomspace(1.0, 1.0 / cond, n)
-    m = (q * ev) @ q.T
-    return 0.5 * (m + m.T)
-
-
-class CovarianceContract:
-    """Checks every covariance object against its dense matrix.
-
-    Subclasses define ``build(self) -> (cov_object, dense_matrix)`` where the
-    dense matrix is computed with numpy from the same ingredients.
-    """
-
-    n_rows = 5
-
-    def build(self):  # pragma: no cover - abstract
-        raise NotImplementedError
-
-    @pytest.fixture
-    def case(self):
-        obj, dense = self.build()
-        kappa = np.linalg.cond(dense)
-        n = dense.shape[0]
-        # Backward-stable factor-and-solve: relative error bounded by c * n * kappa * eps
-        # (Higham, Accuracy and Stability of Numerical Algorithms, 2002, ch. 10).
-        tol = 20 * n * kappa * EPS
-        rng = np.random.default_rng(99)
-        x = rng.standard_normal((self.n_rows, n))
-        return obj, dense, tol, x
-
-    def test_dim(self, case):
-        obj, dense, _, _ = case
-        assert obj.dim == dense.shape[0]
-
-    def test_dense(self, case):
-        obj, dense, tol, _ = case
-        dense_of = obj.dense() if hasattr(obj, "dense") else obj.matrix()
-        np.testing.assert_allclose(dense_of, dense, rtol=0, atol=tol * np.abs(dense).max())
-
-    def test_logdet_against_numpy_slogdet(self, case):
-        obj, dense, tol, _ = case
-        sign, ref = np.linalg.slogdet(dense)  # numpy reference
-        assert sign == 1.0
-        assert obj.logdet() == pytest.approx(ref, rel=tol, abs=tol * dense.shape[0])
-
-    def test_solve_against_numpy_solve(self, case):
-        obj, dense, tol, x = case
-        ref = np.linalg.solve(dense, x.T)  # numpy reference (LU), for the test only
-        got = obj.solve(x.T)
-        assert got.shape == x.T.shape
-        np.testing.assert_allclose(got, ref, rtol=0, atol=tol * np.abs(ref).max())
-        one = obj.solve(x[0])
-        assert one.shape == (dense.shape[0],)
-        np.testing.assert_allclose(one, ref[:, 0], rtol=0, atol=tol * np.abs(ref).max())
-
-    def test_quad_against_numpy(self, case):
-        obj, dense, tol, x = case
-        shift = np.linspace(-0.5, 0.5, dense.shape[0])
-        d = x - shift
-        ref = np.einsum("ij,ji->i", d, np.linalg.solve(dense, d.T))  # numpy reference
-        got = obj.quad(x, shift=shift)
-        assert got.shape == (x.shape[0],)
-        np.testing.assert_allclose(got, ref, rtol=tol)
-        assert isinstance(obj.quad(x[0]), float)
-
-    def test_whiten_gives_identity_covariance(self, case):
-        # A whitening W satisfies W S W^T = I: applied to the columns of a numpy
-        # Cholesky factor of S it yields an orthogonal matrix (common practice).
-        obj, dense, tol, x = case
-        lo = np.linalg.cholesky(dense)
-        z = obj.whiten(lo.T)  # rows are W l_j
-        np.testing.assert_allclose(z.T @ z, np.eye(dense.shape[0]), rtol=0, atol=tol)
-        # and ||W (x - shift)||^2 is the quadratic form
-        shift = np.full(dense.shape[0], 0.25)
-        zx = obj.whiten(x, shift=shift)
-        np.testing.assert_allclose(np.sum(zx**2, axis=1), obj.quad(x, shift=shift), rtol=tol)
-        assert obj.whiten(x[0]).shape == (dense.shape[0],)
-
-    def test_loglik_against_scipy_multivariate_normal(self, case):
-        obj, dense, tol, x = case
-        ref = stats.multivariate_normal(np.zeros(dense.shape[0]), dense).logpdf(x)  # scipy.stats reference
-        got = whiten.gaussian_loglik(x, obj)
-        np.testing.assert_allclose(got, ref, rtol=tol * 10)
-
-    def test_health_summary(self, case):
-        obj, dense, _, _ = case
-        h = obj.health
-        assert isinstance(h, whiten.FactorHealth)
-        assert 0 < h.rcond <= 1 and 0 < h.rcond_scaled <= 1
-        # rcond is an estimate of 1/cond_1; LAPACK's estimator is within a factor of
-        # ~n of the truth (Higham 2002, ch. 15) and never above 1/cond.
-        true = 1.0 / np.linalg.cond(dense, 1)
-        assert true / (10 * dense.shape[0]) <= h.rcond <= true * (10 * dense.shape[0])
-        assert h.digits_lost >= 0
-
-    def test_inputs_are_not_modified(self, case):
-        obj, _, _, x = case
-        before = x.copy()
-        obj.quad(x, shift=np.ones(x.shape[1]))
-        obj.whiten(x)
-        obj.solve(x.T)
-        np.testing.assert_array_equal(x, before)
-
-    def test_shape_and_value_errors(self, case):
-        obj, dense, _, x = case
-        n = dense.shape[0]
-        with pytest.raises(InputError, match="expected rows of length"):
-            obj.quad(np.ones((2, n + 1)))
-        with pytest.raises(InputError, match=r"expected shape"):
-            obj.solve(np.ones(n + 1))
-        bad = x.copy()
-        bad[1, 0] = np.nan
-        with pytest.raises(InputError, match="row 1, column 0"):
-            obj.whiten(bad)
-
-
+# ---------------------------------------------------------------- the contract, once per structure
 class TestFactorContract(CovarianceContract):
+    method = "cholesky"
+    columns = ["a", "b", "c", "d", "e", "f", "g"]
+
     def build(self):
-        a = _spd(7, 1e3, seed=1)
-        return whiten.cholesky(a), a
+        a = spd(7, 1e3, seed=1) * np.outer(np.logspace(0, 2, 7), np.logspace(0, 2, 7))
+        return whiten.cholesky(pd.DataFrame(a, index=self.columns, columns=self.columns)), a
+
+
+class TestJitteredFactorContract(CovarianceContract):
+    method = "cholesky+jitter"
+    jitter = 1e-3
+
+    def build(self):
+        a = (lambda m: m.T @ m)(np.array([[1.0, 2, 3], [4, 5, 6], [7, 8, 9]]))  # rank 2
+        return whiten.cholesky(a, jitter=self.jitter), a + self.jitter * np.eye(3)
+
+
+class TestGivenFactorContract(CovarianceContract):
+    method = "given"
+
+    def build(self):
+        lower = np.linalg.cholesky(spd(5, 1e2, seed=7))
+        return whiten.Factor.from_lower(lower), lower @ lower.T
 
 
 class TestDiagonalContract(CovarianceContract):
+    method = "diagonal"
+    columns = ["u", "v", "w", "x", "y", "z"]
+
     def build(self):
         d = np.array([3.0, 0.2, 1e-3, 5.0, 0.7, 2.5])
-        return whiten.diagonal(d), np.diag(d)
+        return whiten.diagonal(d, columns=self.columns), np.diag(d)
 
 
 class TestLowRankPlusDiagonalContract(CovarianceContract):
+    method = "low-rank+diagonal"
+
     def build(self):
         rng = np.random.default_rng(5)
         u = rng.standard_normal((9, 3)) * np.array([2.0, 0.5, 0.1])
@@ -158,21 +65,51 @@ class TestLowRankPlusDiagonalContract(CovarianceContract):
 
 
 class TestBlockDiagonalContract(CovarianceContract):
+    method = "block-diagonal(3 blocks)"
+    columns = ["a0", "a1", "a2", "b0", "b1", "b2", "b3", "c0", "c1"]
+
     def build(self):
-        a = _spd(3, 50.0, seed=2)
-        b = _spd(4, 10.0, seed=3) * 1e-2
+        a = spd(3, 50.0, seed=2)
+        b = spd(4, 10.0, seed=3) * 1e-2
         c = np.array([0.4, 0.9])
-        obj = whiten.block_diagonal([a, whiten.cholesky(b), whiten.diagonal(c)])
+        obj = whiten.block_diagonal([pd.DataFrame(a, index=self.columns[:3], columns=self.columns[:3]),
+                                     whiten.cholesky(b, columns=self.columns[3:7]),
+                                     whiten.diagonal(c, columns=self.columns[7:])])
         dense = np.zeros((9, 9))
         dense[:3, :3], dense[3:7, 3:7], dense[7:, 7:] = a, b, np.diag(c)
         return obj, dense
 
 
-class TestKroneckerContract(CovarianceContract):
+class TestBlockDiagonalWithJitterContract(CovarianceContract):
+    method = "block-diagonal(2 blocks)"
+    jitter = 1e-3
+
     def build(self):
-        a = _spd(3, 20.0, seed=4)
-        b = _spd(4, 30.0, seed=6)
+        a = spd(3, 20.0, seed=8)
+        g = (lambda m: m.T @ m)(np.array([[1.0, 2, 3], [4, 5, 6], [7, 8, 9]]))  # rank 2, repaired below
+        obj = whiten.block_diagonal([a, whiten.cholesky(g, jitter=self.jitter)])
+        dense = np.zeros((6, 6))
+        dense[:3, :3], dense[3:, 3:] = a, g + self.jitter * np.eye(3)
+        return obj, dense
+
+
+class TestKroneckerContract(CovarianceContract):
+    method = "kronecker"
+
+    def build(self):
+        a = spd(3, 20.0, seed=4)
+        b = spd(4, 30.0, seed=6)
         return whiten.kronecker(a, whiten.cholesky(b)), np.kron(a, b)
+
+
+class TestKroneckerWithJitterContract(CovarianceContract):
+    method = "kronecker+jitter"
+    jitter = 1e-3
+
+    def build(self):
+        a = spd(2, 5.0, seed=9)
+        g = (lambda m: m.T @ m)(np.array([[1.0, 2, 3], [4, 5, 6], [7, 8, 9]]))
+        return whiten.kronecker(a, whiten.cholesky(g, jitter=self.jitter)), np.kron(a, g + self.jitter * np.eye(3))
 
 
 # ---------------------------------------------------------------- specifics
@@ -274,7 +211,7 @@ def test_low_rank_random_against_dense(n, k, scale, spread, seed):
 @given(a=st.integers(1, 5), b=st.integers(1, 5), ca=st.floats(1.0, 1e4), cb=st.floats(1.0, 1e4),
        seed=st.integers(0, 2**16))
 def test_kronecker_random_against_dense(a, b, ca, cb, seed):
-    A, B = _spd(a, ca, seed), _spd(b, cb, seed + 1)
+    A, B = spd(a, ca, seed), spd(b, cb, seed + 1)
     s = whiten.kronecker(A, B)
     dense = np.kron(A, B)  # numpy reference
     x = np.random.default_rng(seed).standard_normal((2, a * b))
@@ -283,3 +220,23 @@ def test_kronecker_random_against_dense(a, b, ca, cb, seed):
     ref = np.linalg.solve(dense, x.T)
     np.testing.assert_allclose(s.solve(x.T), ref, rtol=0, atol=tol * np.abs(ref).max())
     assert s.logdet() == pytest.approx(np.linalg.slogdet(dense)[1], abs=tol * a * b)
+
+
+def test_the_package_keeps_every_public_name():
+    import whiten.linalg.structured as structured
+
+    for name in structured.__all__:
+        assert getattr(structured, name) is getattr(whiten, name)
+    assert structured.diagonal([1.0, 2.0]).dim == 2  # the function, not the module of the same name
+
+
+def test_columns_is_the_one_keyword_for_labels():
+    s = whiten.diagonal([1.0, 2.0], columns=["a", "b"])
+    assert s.columns == ["a", "b"]
+    assert whiten.block_diagonal([s, whiten.diagonal([3.0])]).columns is None  # one block unlabelled
+    with pytest.raises(TypeError):
+        whiten.diagonal([1.0, 2.0], names=["a", "b"])
+    with pytest.raises(TypeError):
+        whiten.cholesky(np.eye(2), names=["a", "b"])
+    with pytest.raises(InputError, match="columns: expected 2 names, got 1"):
+        whiten.diagonal([1.0, 2.0], columns=["a"])
