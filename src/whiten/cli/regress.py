@@ -241,7 +241,7 @@ def run(args) -> int:
         msg = msg.replace("rank_policy='nan', 'drop' or 'minimum-norm'", "--rank-policy nan, drop or minimum-norm")
         raise InputError(f"{args.data}: {msg}") from None
     text = _report(fit, args, preds)
-    doc = {"schema": "whiten.regress/1", "data": os.path.basename(args.data), "response": args.response,
+    doc = {"schema": "whiten.regress/2", "data": os.path.basename(args.data), "response": args.response,
            "predictors": preds, "weights": args.weights, "level": args.level, "fit": fit.to_dict()}
     write_text(args.output, json.dumps(doc, indent=1, allow_nan=False) + "\n", force=args.force, what="fit")
     if args.chart:
