@@ -13,7 +13,7 @@ import whiten
 from whiten.cli import main
 from whiten.monitor import score
 
-from .conftest import correlated_cov
+from ..monitor.conftest import correlated_cov
 
 pytestmark = pytest.mark.skipif(not hasattr(whiten, "load_baseline"), reason="needs whiten.load_baseline")
 
