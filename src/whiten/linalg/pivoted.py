@@ -8,13 +8,13 @@ from typing import Any, Sequence
 import numpy as np
 from scipy.linalg import lapack, solve_triangular
 
+from .._numerics import EPS
 from .._validate import as_square
 from ..errors import InputError, NotPositiveDefiniteError
 from .health import _pow2_scale
 
 __all__ = ["RankReport", "pivoted_cholesky"]
 
-_EPS = float(np.finfo(np.float64).eps)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -120,7 +120,7 @@ def pivoted_cholesky(a: Any, *, tol: float | None = None, columns: Sequence[str]
     if np.any(diag < 0):
         k = int(np.argmin(diag))
         raise NotPositiveDefiniteError(f"a: variance of {labels[k]!r} is negative ({diag[k]:.3g})", pivot=k)
-    tol = 100.0 * p * _EPS if tol is None else float(tol)
+    tol = 100.0 * p * EPS if tol is None else float(tol)
     if tol < 0:
         raise InputError(f"tol: must be non-negative, got {tol}")
     s = _pow2_scale(diag.copy())

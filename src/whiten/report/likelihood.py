@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from .._numerics import digits_trusted
 from .._settings import current
 from ..errors import InputError
 from .document import Report, format_number
@@ -310,7 +311,7 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
                    note="chance of a chi-square at least this large if the covariance is right")
     rep.key_figure("Reduced chi-square", float(fit.reduced_chi2), digits=4, key="reduced-chi2",
                    note="about 1 when the stated covariance fits")
-    trusted = max(0.0, 15.65 - float(h.digits_lost_2norm))
+    trusted = digits_trusted(float(h.digits_lost_2norm))
     rep.key_figure("Digits in the parameter covariance", trusted, text=f"{trusted:.1f}", key="digits",
                    tone="alert" if float(h.digits_lost_2norm) > current().digits_warn else "good",
                    note=f"Jacobian condition number {format_number(h.cond, 3)}")
