@@ -4,9 +4,10 @@ The public API is what this module re-exports; everything in underscored
 modules is private.
 """
 
-from . import _engines
+from . import _engines, monitor, report
 from ._settings import get_options, options, set_options
 from ._version import __version__
+from .baseline import Baseline, BaselineHealth, fit_baseline, load_baseline
 from .errors import (
     ConditioningWarning,
     InputError,
@@ -18,31 +19,6 @@ from .errors import (
     WhitenError,
 )
 from .gaussian import Gaussian, RowEvaluation
-from .linalg import Factor, FactorHealth, RankReport, cholesky, pivoted_cholesky
-
-__all__ = [
-    "__version__",
-    "get_options", "options", "set_options",
-    "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
-    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning",
-    "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
-    "Gaussian", "RowEvaluation",
-]
-
-# --- regression (issue: regression) re-exports go below this line ---
-from .regression import (
-    CollinearityReport,
-    FitHealth,
-    InfluenceReport,
-    LinearFit,
-    RidgeInfo,
-    fit_linear,
-    influence,
-)
-
-__all__ += ["fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport"]
-
-# --- likelihood (issue: likelihoods) re-exports go below this line ---
 from .likelihood import (
     CalibrationFit,
     JacobianHealth,
@@ -54,6 +30,7 @@ from .likelihood import (
     loglik_grad_mean,
     profile_interval,
 )
+from .linalg import Factor, FactorHealth, RankReport, cholesky, pivoted_cholesky
 from .linalg.structured import (
     BlockDiagonalCovariance,
     DiagonalCovariance,
@@ -65,22 +42,16 @@ from .linalg.structured import (
     kronecker,
     low_rank_plus_diagonal,
 )
-
-__all__ += ["gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_grad_cov", "calibrate",
-            "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval",
-            "StructuredCovariance", "DiagonalCovariance", "LowRankPlusDiagonal", "BlockDiagonalCovariance",
-            "KroneckerCovariance", "diagonal", "low_rank_plus_diagonal", "block_diagonal", "kronecker"]
-
-# --- baseline / monitoring re-exports go below this line ---
-from .baseline import Baseline, BaselineHealth, fit_baseline, load_baseline
-
-__all__ += ["Baseline", "BaselineHealth", "fit_baseline", "load_baseline"]
-from . import monitor
-
-__all__ += ["monitor"]
-
-# --- report re-exports go below this line ---
-from . import report
+from .parallel.dask.common import is_dask_collection as _is_dask_collection
+from .regression import (
+    CollinearityReport,
+    FitHealth,
+    InfluenceReport,
+    LinearFit,
+    RidgeInfo,
+    fit_linear,
+    influence,
+)
 from .report import (
     Provenance,
     Report,
@@ -90,8 +61,29 @@ from .report import (
     regression_report,
 )
 
-__all__ += ["report", "Report", "Provenance", "monitoring_report", "regression_report", "likelihood_report",
-            "calibration_report"]
+# a new re-export goes into the one sorted import block above (ruff keeps it ordered; statements between
+# imports would break that) and its names into its area's group here
+__all__ = [
+    "__version__",
+    "get_options", "options", "set_options",
+    "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
+    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning",
+    "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
+    "Gaussian", "RowEvaluation",
+    # regression
+    "fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport",
+    # likelihood and structured covariances
+    "gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_grad_cov", "calibrate",
+    "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval",
+    "StructuredCovariance", "DiagonalCovariance", "LowRankPlusDiagonal", "BlockDiagonalCovariance",
+    "KroneckerCovariance", "diagonal", "low_rank_plus_diagonal", "block_diagonal", "kronecker",
+    # baseline / monitoring
+    "Baseline", "BaselineHealth", "fit_baseline", "load_baseline",
+    "monitor",
+    # report
+    "report", "Report", "Provenance", "monitoring_report", "regression_report", "likelihood_report",
+    "calibration_report",
+]
 
 
 # --- engines: the dask engine claims dask collections; dask itself is imported only when first needed ---
@@ -103,7 +95,5 @@ def _load_dask():
 
     return dask
 
-
-from .parallel.dask.common import is_dask_collection as _is_dask_collection  # noqa: E402
 
 _engines.register("dask", claims=_is_dask_collection, load=_load_dask)

@@ -16,8 +16,9 @@ over to: ``fit_baseline(data, **kw)``, ``score(baseline, data, **kw)`` and
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Any, Callable
+from typing import Any
 
 __all__ = ["register", "engine_for", "registered"]
 

@@ -18,11 +18,13 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 
-__all__ = ["EPS", "DIGITS", "digits_lost", "digits_lost_from_rcond", "digits_trusted", "json_ready", "json_number", "from_json_number"]
+__all__ = ["EPS", "DIGITS", "digits_lost", "digits_lost_from_rcond", "digits_trusted", "json_ready", "json_number",
+           "from_json_number"]
 
 #: unit roundoff of float64 (2**-52, the spacing of doubles at 1.0)
 EPS: float = float(np.finfo(np.float64).eps)

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
-from typing import Iterator
+from collections.abc import Iterator
 
 from .errors import InputError
 

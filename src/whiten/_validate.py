@@ -7,7 +7,8 @@ reported as :class:`~whiten.errors.InputError` naming the row and column.
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import os
 import sys
+import types
 import warnings
 
 _PKG_DIR = os.path.dirname(os.path.abspath(__file__))
@@ -12,7 +13,7 @@ _PKG_DIR = os.path.dirname(os.path.abspath(__file__))
 def _user_stacklevel() -> int:
     """stacklevel of the first frame outside the whiten package."""
     level = 1
-    frame = sys._getframe(1)
+    frame: types.FrameType | None = sys._getframe(1)
     while frame is not None:
         fname = os.path.abspath(frame.f_code.co_filename)
         if not fname.startswith(_PKG_DIR + os.sep):

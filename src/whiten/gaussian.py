@@ -5,7 +5,8 @@ from __future__ import annotations
 import dataclasses
 import math
 import warnings
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -87,8 +88,8 @@ class Gaussian:
         cand += [n for n in (factor.columns, mu_names) if n is not None]
         final = cand[0] if cand else None
         for other in cand[1:]:
-            if list(other) != list(final):
-                raise InputError(f"variable names disagree: {list(final)} vs {list(other)}")
+            if list(other) != list(cand[0]):
+                raise InputError(f"variable names disagree: {list(cand[0])} vs {list(other)}")
         if final is not None and len(final) != mu.shape[0]:
             raise InputError(f"columns: expected {mu.shape[0]} names, got {len(final)}")
         if final is not None and factor.columns != list(final):
@@ -259,14 +260,14 @@ class Gaussian:
             raise InputError(f"{what}: no variables given")
         return np.asarray(out, dtype=np.intp)
 
-    def marginal(self, idx: Any) -> "Gaussian":
+    def marginal(self, idx: Any) -> Gaussian:
         """Marginal distribution of the variables ``idx`` (names or positions, in that order)."""
         ii = self._indices(idx, "idx")
         names = None if self._names is None else [self._names[i] for i in ii]
         return Gaussian(self._mean[ii], self._sub_factor(ii) if ii.size != self.dim or
                         not np.array_equal(ii, np.arange(self.dim)) else self._factor, columns=names)
 
-    def conditional(self, idx: Any, values: Any) -> "Gaussian":
+    def conditional(self, idx: Any, values: Any) -> Gaussian:
         """Distribution of the other variables given ``x[idx] = values``.
 
         Notes
@@ -315,7 +316,7 @@ class Gaussian:
         """Differential entropy in nats, ``(p (1 + log 2 pi) + log det cov) / 2``."""
         return 0.5 * (self.dim * (1.0 + _LOG_2PI) + self._factor.logdet())
 
-    def kl_divergence(self, other: "Gaussian") -> float:
+    def kl_divergence(self, other: Gaussian) -> float:
         """KL(self || other) in nats.
 
         ``tr(S2^{-1} S1)`` is ``||L2^{-1} L1||_F^2`` (one triangular solve with
@@ -327,6 +328,6 @@ class Gaussian:
             raise InputError(f"other: dimension {other.dim} differs from {self.dim}")
         w = other.factor.solve_lower(self._factor.lower)
         tr = float(np.sum(w * w))
-        dq = other.factor.quad(self._mean - other.mean)
+        dq = float(other.factor.quad(self._mean - other.mean))  # one row in, so already a float
         return 0.5 * (tr + dq - self.dim + other.factor.logdet() - self._factor.logdet())
 

@@ -8,8 +8,8 @@ an incomplete row by the same code.
 
 from __future__ import annotations
 
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
-from typing import Callable, Iterator
 
 import numpy as np
 

@@ -7,7 +7,8 @@ the engine that claims it (:mod:`whiten._engines`).
 
 from __future__ import annotations
 
-from typing import Any, Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
+from typing import Any
 
 import numpy as np
 

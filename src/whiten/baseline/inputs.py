@@ -9,7 +9,8 @@ missing-value policy and the weights are applied by
 from __future__ import annotations
 
 import os
-from typing import Any, Iterable, Iterator, Sequence
+from collections.abc import Iterable, Iterator, Sequence
+from typing import Any
 
 import numpy as np
 
@@ -47,6 +48,10 @@ class Source:
         self.chunksize = chunksize
         self.total_rows: int | None = None
         self._index_column: str | None = None
+        # set by the _init_* of the input's kind
+        self.names: list[str]
+        self._array: np.ndarray | None = None
+        self._wvals: np.ndarray | None = None
         if chunksize is not None and (not isinstance(chunksize, (int, np.integer)) or chunksize < 1):
             raise InputError(f"chunksize: expected a positive integer, got {chunksize!r}")
         if isinstance(data, (str, os.PathLike)):
@@ -94,6 +99,7 @@ class Source:
         lookup = {s: c for c, s in zip(df.columns, names_all)}
         cols = [lookup[c] for c in want]
         values, names, index = _validate.as_float_array(df[cols], name="data", ndim=(2,), allow_nan=True)
+        assert names is not None  # a DataFrame's columns always give names
         self.names = names
         self._array = values
         self._index = index
@@ -134,23 +140,24 @@ class Source:
         self.label = "chunks"
         self._index_column = index_column
         self._columns_arg = None if columns is None else [str(c) for c in columns]
-        self.names = self._columns_arg  # may be set by the first chunk
-        if self.names is None:
+        names = self._columns_arg  # None: the first chunk gives them
+        if names is None:
             if self.reiterable and len(data):
                 first = data[0]
-                self.names = self._chunk_names(first)
+                names = self._chunk_names(first)
             elif not self.reiterable:
                 it = iter(data)
                 try:
                     first = next(it)
                 except StopIteration:
                     raise InputError("data: the iterable of chunks is empty") from None
-                self.names = self._chunk_names(first)
+                names = self._chunk_names(first)
                 import itertools
 
                 self._chunks_src = itertools.chain([first], it)
             else:
                 raise InputError("data: the list of chunks is empty")
+        self.names = names
 
         def frames():
             if not self.reiterable:

@@ -8,7 +8,8 @@ format in :mod:`whiten.baseline.modelfile`.
 from __future__ import annotations
 
 import os
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -156,7 +157,7 @@ class Baseline:
         x, _, _ = _validate.as_rows(rows, self.dim, names=self._columns, name="rows")
         return x
 
-    def _windowed(self, x: np.ndarray, sign: int) -> "Baseline":
+    def _windowed(self, x: np.ndarray, sign: int) -> Baseline:
         mean, f, wsum = fold(self._mean, self._factor, self._wsum, x, sign)
         k = x.shape[0]
         params = dict(self._params)
@@ -171,7 +172,7 @@ class Baseline:
                         estimator=self._estimator, params=params, health=health, weight_sum=wsum,
                         created_utc=self._created)
 
-    def update(self, rows: Any) -> "Baseline":
+    def update(self, rows: Any) -> Baseline:
         """A new baseline with ``rows`` folded in, equal to refitting on the enlarged set.
 
         Parameters
@@ -202,7 +203,7 @@ class Baseline:
         """
         return self._windowed(self._rows_for_window(rows, "update"), +1)
 
-    def downdate(self, rows: Any) -> "Baseline":
+    def downdate(self, rows: Any) -> Baseline:
         """A new baseline with ``rows`` (that were part of the fit) folded out.
 
         Removing ``x`` from ``W`` rows: ``mu' = mu - (x - mu) / (W - 1)``,

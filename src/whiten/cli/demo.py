@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import importlib
 from pathlib import Path
+from types import ModuleType
 
 from ..errors import InputError
 
@@ -26,7 +27,7 @@ and prints a short account of what it found. The data are invented.
 """
 
 
-def _available() -> dict[str, object]:
+def _available() -> dict[str, ModuleType]:
     found = {}
     for name, mod in SCENARIOS.items():
         try:

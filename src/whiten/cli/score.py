@@ -58,7 +58,8 @@ def add_parser(sub) -> None:
                    "(x axis: the --index-column when it holds times or numbers, else the row number)")
     p.add_argument("--contributions", metavar="FILE.png",
                    help="write bar charts of the drop contributions for the worst rows")
-    p.add_argument("--index-column", metavar="COL", help="column that labels rows (e.g. a timestamp); kept in the output")
+    p.add_argument("--index-column", metavar="COL",
+                   help="column that labels rows (e.g. a timestamp); kept in the output")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
     p.add_argument("--report", metavar="FILE.html",

@@ -114,7 +114,7 @@ def write_data(folder: Path, *, force: bool = False, seed: int = SEED) -> list[P
 def _bundled(name: str) -> str:
     from importlib import resources
 
-    return resources.files("whiten.demos").joinpath("data", name).read_text(encoding="utf-8")
+    return resources.files("whiten.demos").joinpath("data").joinpath(name).read_text(encoding="utf-8")
 
 
 def _window(scores, rows: tuple[int, int]):

@@ -31,7 +31,7 @@ from __future__ import annotations
 import dataclasses
 import math
 import warnings
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 from scipy import stats
@@ -204,7 +204,7 @@ def fast_mcd(x: np.ndarray, names: Sequence[str], *, support_fraction: float | N
             raise InputError("robust: every start was singular; the rows span fewer than p dimensions")
         cands.sort(key=lambda c: c[0])
         finals = []
-        for ld, mu, f, _, _ in cands[:_N_BEST]:
+        for _, mu, f, _, _ in cands[:_N_BEST]:
             finals.append(_csteps(y, h, mu, f, _MAX_CSTEPS))
         best = min(finals, key=lambda c: c[0])
         pool_n = m
@@ -215,6 +215,7 @@ def fast_mcd(x: np.ndarray, names: Sequence[str], *, support_fraction: float | N
 
     cutoff = float(stats.chi2.ppf(_REWEIGHT_Q, p))
     d2 = f_raw.quad(y, shift=mu_raw)
+    assert isinstance(d2, np.ndarray)  # y holds rows (2-D), so one distance per row
     kept = d2 <= cutoff
     n_kept = int(kept.sum())
     if n_kept <= p + 1:  # pragma: no cover - needs pathological data

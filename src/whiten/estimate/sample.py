@@ -19,7 +19,7 @@ from __future__ import annotations
 import dataclasses
 import math
 import warnings
-from typing import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 
 import numpy as np
 
@@ -33,8 +33,8 @@ from ..linalg.health import health_of
 from ..linalg.pivoted import pivoted_cholesky
 from .streaming import Block, ScatterState, accumulate
 
-__all__ = ["ScatterFit", "fit_scatter", "check_scatter", "check_rows", "covariance_factor", "factor_from_r", "gram_factor",
-           "no_rows_error", "METHODS"]
+__all__ = ["ScatterFit", "fit_scatter", "check_scatter", "check_rows", "covariance_factor", "factor_from_r",
+           "gram_factor", "no_rows_error", "METHODS"]
 
 METHODS = ("auto", "gram", "tsqr")
 

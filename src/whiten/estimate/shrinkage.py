@@ -22,7 +22,7 @@ matrix), so no Gram matrix of the data is factored and ``n < p`` is fine.
 from __future__ import annotations
 
 import math
-from typing import Iterable, Sequence
+from collections.abc import Iterable, Sequence
 
 import numpy as np
 
@@ -87,7 +87,8 @@ def shrunk_factor(r: np.ndarray, n: int, intensity: float, m: float, names: Sequ
     # target scale it is singular to working precision (rounding leaves ~1e-16 in place of 0)
     if intensity <= 1e-12 and n <= p:
         raise InputError(
-            f"the shrinkage intensity is 0 (to rounding, {intensity:.1e}) for these {n} rows (their spread about the mean is exactly "
+            f"the shrinkage intensity is 0 (to rounding, {intensity:.1e}) for these {n} rows "
+            f"(their spread about the mean is exactly "
             f"explained by the sample covariance, as happens with 2 rows), so the estimate is the singular "
             f"sample covariance of n <= p = {p}. Use shrinkage='oas' or more rows")
     stacked = np.vstack([math.sqrt((1.0 - intensity) / n) * r, math.sqrt(intensity * m) * np.eye(p)])

@@ -19,7 +19,8 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from typing import Iterable, Iterator, NamedTuple
+from collections.abc import Iterable, Iterator, Sequence
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -48,7 +49,7 @@ class Block(NamedTuple):
     values: np.ndarray
     weights: np.ndarray | None
     positions: np.ndarray
-    labels: object = None
+    labels: Sequence[Any] | np.ndarray | None = None
 
 
 @dataclasses.dataclass(frozen=True)
@@ -95,7 +96,7 @@ class ScatterState:
         return self.mat.T @ self.mat
 
     @classmethod
-    def empty(cls, shift: np.ndarray, kind: str) -> "ScatterState":
+    def empty(cls, shift: np.ndarray, kind: str) -> ScatterState:
         p = shift.shape[0]
         mat = np.zeros((p, p)) if kind == "gram" else np.zeros((0, p))
         return cls(kind, 0, 0.0, np.array(shift, dtype=np.float64), np.zeros(p), mat)

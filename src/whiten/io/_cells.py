@@ -14,14 +14,16 @@ import io
 import lzma
 import os
 import zipfile
+from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import IO, Any, Sequence
+from typing import IO, Any
 
 import numpy as np
 
 from ..errors import InputError
 
-_TEXT_OPENERS = {".gz": gzip.open, ".bz2": bz2.open, ".xz": lzma.open}
+# each opener returns text in "rt" mode; the mapping forgets their mode-dependent overloads
+_TEXT_OPENERS: dict[str, Callable[..., IO[str]]] = {".gz": gzip.open, ".bz2": bz2.open, ".xz": lzma.open}
 
 
 def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, where: str,
@@ -89,7 +91,7 @@ def _open_text(path: Path) -> IO[str]:
     name = path.name.lower()
     for ext, opener in _TEXT_OPENERS.items():
         if name.endswith(ext):
-            return opener(path, "rt", encoding="utf-8", newline="")  # type: ignore[operator]
+            return opener(path, "rt", encoding="utf-8", newline="")
     if name.endswith(".zip"):
         zf = zipfile.ZipFile(path)
         first = zf.namelist()[0]

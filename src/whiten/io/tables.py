@@ -14,8 +14,9 @@ from __future__ import annotations
 
 import os
 import sys
+from collections.abc import Iterable, Iterator, Sequence
 from pathlib import Path
-from typing import Any, Iterable, Iterator, Sequence
+from typing import Any
 
 from .._validate import select_columns
 from ..errors import InputError
@@ -64,7 +65,7 @@ def existing_file(path: str | os.PathLike, *, missing: str = "data file {path!r}
     return p
 
 
-def open_table(path: str | os.PathLike) -> "Table":
+def open_table(path: str | os.PathLike) -> Table:
     """Open a table file: check it exists, tell its format, read its header once.
 
     Parameters

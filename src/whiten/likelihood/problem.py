@@ -8,7 +8,8 @@ optimizer with one parameter fixed).
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 
@@ -88,9 +89,11 @@ def white(factor: Any, v: np.ndarray) -> np.ndarray:
     return factor.whiten(v)
 
 
-def whitened_jac(prob: Problem, theta: np.ndarray, n: int, k: int, fallback: np.ndarray) -> np.ndarray:
+def whitened_jac(prob: Problem, theta: np.ndarray, n: int, k: int, fallback: np.ndarray | None) -> np.ndarray:
     """The user's Jacobian at theta, checked and whitened (``fallback`` when none was given)."""
     if prob.jac is None:
+        # callers pass fallback=None only for problems that carry their own Jacobian
+        assert fallback is not None
         return fallback
     j = np.asarray(prob.jac(theta.copy()), dtype=np.float64)
     if j.ndim == 1 and k == 1:
@@ -141,10 +144,13 @@ def solve(prob: Problem, theta0: np.ndarray, fixed: dict | None = None):
     def fun(t):
         return white(prob.factor, predict(prob.model, full(t), n) - prob.y)
 
-    jac = "2-point"
+    # least_squares takes either a finite-difference scheme's name or a callable
+    jac: str | Callable[[np.ndarray], np.ndarray] = "2-point"
     if prob.jac is not None:
-        def jac(t):
+        def user_jac(t):
             return whitened_jac(prob, full(t), n, k_all, None)[:, free]
+
+        jac = user_jac
 
     kw = dict(jac=jac, method=prob.method, ftol=prob.tol, xtol=prob.tol, gtol=prob.tol,
               x_scale=prob.x_scale if not isinstance(prob.x_scale, np.ndarray) else prob.x_scale[free])

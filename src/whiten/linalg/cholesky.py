@@ -8,7 +8,8 @@ unit-diagonal matrix); every repair is reported by a
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -112,8 +113,8 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
             raise NotPositiveDefiniteError(
                 f"a + {amount:.3g}*I is not positive definite (failed at pivot {_name(names, info - 1)}); "
                 "use a larger jitter or jitter='auto'", pivot=info - 1)
-        return _finish(lower, mj, rc_s, anorm, amount, amount / mean_diag, "cholesky" if amount == 0 else "cholesky+jitter",
-                       names, opts)
+        return _finish(lower, mj, rc_s, anorm, amount, amount / mean_diag,
+                       "cholesky" if amount == 0 else "cholesky+jitter", names, opts)
 
     lower, sc, info, rc_s, anorm = factor_scaled(m)
     if info == 0:

@@ -11,7 +11,8 @@ a *reported* quantity. Layers above never call LAPACK themselves.
 from __future__ import annotations
 
 import math
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 from scipy.linalg import blas, lapack
@@ -56,7 +57,7 @@ class Factor:
 
     __slots__ = ("_lower", "_lower_f", "_health", "_names", "_matrix", "_inv_diag", "_logdet")
 
-    def __init__(self, lower: np.ndarray, health: FactorHealth, names: Sequence[str] | None = None,
+    def __init__(self, lower: np.ndarray, health: FactorHealth | _PendingHealth, names: Sequence[str] | None = None,
                  matrix: np.ndarray | None = None, *, _copy: bool = True):
         # one Fortran-ordered copy serves both users and LAPACK/BLAS; with _copy=False the
         # library hands over arrays it made for this factor alone (no copies at all)
@@ -64,7 +65,7 @@ class Factor:
         lower.setflags(write=False)
         self._lower = lower
         self._lower_f = lower
-        self._health = health
+        self._health: FactorHealth | _PendingHealth = health
         self._names = list(names) if names is not None else None
         if self._names is not None and len(self._names) != lower.shape[0]:
             raise InputError(f"columns: expected {lower.shape[0]} names, got {len(self._names)}")
@@ -72,12 +73,12 @@ class Factor:
             matrix = np.array(matrix, dtype=np.float64, copy=True) if _copy else matrix
             matrix.setflags(write=False)
         self._matrix = matrix
-        self._inv_diag = None
-        self._logdet = None
+        self._inv_diag: np.ndarray | None = None
+        self._logdet: float | None = None
 
     # ------------------------------------------------------------------ build
     @classmethod
-    def from_lower(cls, lower: Any, *, columns: Sequence[str] | None = None, jitter: float = 0.0) -> "Factor":
+    def from_lower(cls, lower: Any, *, columns: Sequence[str] | None = None, jitter: float = 0.0) -> Factor:
         """Wrap an existing lower-triangular factor (checked: square, finite, positive diagonal).
 
         Raises
@@ -296,18 +297,19 @@ class Factor:
         """
         if self._inv_diag is None:
             p = self.dim
-            w = blas.dtrsm(1.0, self._lower_f, np.eye(p, order="F"), side=0, lower=1)  # inverse-ok: diagonal of the precision is reported, never applied
+            w = blas.dtrsm(  # inverse-ok: diagonal of the precision is reported, never applied
+                1.0, self._lower_f, np.eye(p, order="F"), side=0, lower=1)
             d = np.einsum("ij,ij->j", w, w)
             d.setflags(write=False)
             self._inv_diag = d
         return self._inv_diag
 
     # -------------------------------------------------------------- updates
-    def update(self, x: Any) -> "Factor":
+    def update(self, x: Any) -> Factor:
         """Factor of ``a + x x^T`` (rank-one update, O(p^2)); ``x`` may be rows to add in turn."""
         return self._rank_one(x, +1.0)
 
-    def downdate(self, x: Any) -> "Factor":
+    def downdate(self, x: Any) -> Factor:
         """Factor of ``a - x x^T`` (rank-one downdate by hyperbolic rotations).
 
         Raises
@@ -317,7 +319,7 @@ class Factor:
         """
         return self._rank_one(x, -1.0)
 
-    def _rank_one(self, x: Any, sign: float) -> "Factor":
+    def _rank_one(self, x: Any, sign: float) -> Factor:
         rows, _ = self._rows(x, "x")
         lt = np.array(self._lower.T, order="C")  # upper factor R = L^T; rows of R are contiguous
         p = self.dim
@@ -346,17 +348,17 @@ class Factor:
         return Factor(lower, health_of(lower, h.jitter, h.jitter_relative, "updated"), self._names)
 
     # ------------------------------------------------------------ subsets
-    def subset(self, idx: Sequence[int]) -> "Factor":
+    def subset(self, idx: Sequence[int] | np.ndarray) -> Factor:
         """Factor of the principal sub-matrix ``m[idx][:, idx]`` (refactored, no jitter).
 
         A principal sub-matrix of a positive definite matrix is positive definite
         and no worse conditioned, so no jitter or warning is needed.
         """
-        idx = np.asarray(idx, dtype=np.intp)
-        m = self.matrix()[np.ix_(idx, idx)]
+        ix = np.asarray(idx, dtype=np.intp)
+        m = self.matrix()[np.ix_(ix, ix)]
         lower, _, info, rc_s, anorm = factor_scaled(m)
         if info != 0:  # rounding only; cannot happen for a well-formed factor
             raise NotPositiveDefiniteError(f"sub-matrix failed to factor at pivot {info - 1}", pivot=info - 1)
-        names = None if self._names is None else [self._names[i] for i in idx]
+        names = None if self._names is None else [self._names[i] for i in ix]
         h = _PendingHealth(rc_s, anorm, self.jitter, self._health.jitter_relative, self._health.method)
         return Factor(lower, h, names, matrix=m, _copy=False)

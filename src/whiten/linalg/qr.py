@@ -12,7 +12,7 @@ LAPACK, so every QR in whiten uses one workspace rule and one sign rule.
 
 from __future__ import annotations
 
-from typing import Callable, Iterator
+from collections.abc import Callable, Iterator
 
 import numpy as np
 from scipy.linalg import blas, lapack

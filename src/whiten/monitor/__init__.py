@@ -1,7 +1,8 @@
 """Monitoring: score sensor rows against a baseline, explain alarms, chart them.
 
 :func:`score` is the entry point and :func:`score_file` its streaming twin
-for files; :mod:`~whiten.monitor.limits` holds the exact laws of the squared distance, :mod:`~whiten.monitor.fdr` batch control,
+for files; :mod:`~whiten.monitor.limits` holds the exact laws of the squared distance,
+:mod:`~whiten.monitor.fdr` batch control,
 :mod:`~whiten.monitor.charts` the pictures (matplotlib, imported lazily).
 """
 

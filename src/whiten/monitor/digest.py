@@ -17,7 +17,8 @@ The same digest is built from an in-memory score table
 from __future__ import annotations
 
 from collections import Counter
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -91,7 +92,7 @@ class ScoreDigest:
 
     # ------------------------------------------------------------------ feed
     @classmethod
-    def from_frame(cls, scores: Any, *, worst: int = 5, chart_points: int | None = None) -> "ScoreDigest":
+    def from_frame(cls, scores: Any, *, worst: int = 5, chart_points: int | None = None) -> ScoreDigest:
         """The digest of an in-memory score table (every row on the chart unless ``chart_points``)."""
         need_score_columns(scores, _NEED)
         attrs = dict(scores.attrs)

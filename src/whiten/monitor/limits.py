@@ -75,8 +75,10 @@ def t2_law(phase: str, p: int, m: int | None = None) -> str:
     """A one-line statement of the distribution used (for reports and chart captions)."""
     check_phase(phase, p, m)
     if phase == "new":
+        assert m is not None  # check_phase refuses m=None for this phase
         return f"T² ~ {p}({m}+1)({m}-1)/({m}({m}-{p})) · F({p}, {m - p})  [Tracy, Young & Mason 1992]"
     if phase == "reference":
+        assert m is not None  # check_phase refuses m=None for this phase
         return f"T² ~ ({m}-1)²/{m} · Beta({p}/2, {m - p - 1}/2)  [Tracy, Young & Mason 1992]"
     return f"T² ~ chi-square({p})  [parameters known]"
 
@@ -88,7 +90,8 @@ def _broadcast(d2: Any, p: Any) -> tuple[np.ndarray, np.ndarray]:
         if not np.all(np.isfinite(p)) or np.any(p != np.round(p)):
             raise InputError("p: the number of sensors must be a whole number")
         p = p.astype(np.int64)
-    return np.broadcast_arrays(d2, p)
+    d2b, pb = np.broadcast_arrays(d2, p)
+    return d2b, pb
 
 
 def t2_pvalue(d2: Any, p: Any, m: int | None = None, *, phase: str = "new") -> np.ndarray:
@@ -143,9 +146,11 @@ def t2_pvalue(d2: Any, p: Any, m: int | None = None, *, phase: str = "new") -> n
     # the survival functions scipy.stats itself evaluates (fdtrc, betaincc, chdtrc), called
     # directly: the same values without the per-call argument machinery
     if phase == "new":
+        assert m is not None  # check_phase refuses m=None for this phase
         scale = k * (m + 1.0) * (m - 1.0) / (m * (m - k))
         res = special.fdtrc(k, m - k, x / scale)
     elif phase == "reference":
+        assert m is not None  # check_phase refuses m=None for this phase
         scale = (m - 1.0) ** 2 / m
         res = special.betaincc(np.divide(k, 2.0), (m - k - 1) / 2.0, np.minimum(x / scale, 1.0))
     else:
@@ -192,8 +197,10 @@ def t2_limit(alpha: float, p: Any, m: int | None = None, *, phase: str = "new") 
         check_phase(phase, int(uniq.max()), m)
         k = uniq.astype(np.float64)
         if phase == "new":
+            assert m is not None  # check_phase refuses m=None for this phase
             lim = k * (m + 1.0) * (m - 1.0) / (m * (m - k)) * stats.f.isf(alpha, k, m - k)
         elif phase == "reference":
+            assert m is not None  # check_phase refuses m=None for this phase
             lim = (m - 1.0) ** 2 / m * stats.beta.isf(alpha, k / 2.0, (m - k - 1) / 2.0)
         else:
             lim = stats.chi2.isf(alpha, k)

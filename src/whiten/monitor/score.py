@@ -25,7 +25,8 @@ Unobserved sensors get NaN in all three.
 from __future__ import annotations
 
 import os
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 from .. import _engines
 from ..io.tables import open_table

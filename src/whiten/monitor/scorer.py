@@ -10,7 +10,8 @@ columns it produces are described in :mod:`whiten.monitor.score`.
 from __future__ import annotations
 
 import warnings
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -169,6 +170,7 @@ class Scorer:
             self._block(x[a:b], mask[a:b], d2[a:b], nobs[a:b], drop[a:b], chain[a:b])
         pval = t2_pvalue(d2, nobs, self.m, phase=self.phase)
         limit = t2_limit(self.alpha, nobs, self.m, phase=self.phase)
+        assert isinstance(limit, np.ndarray)  # nobs is an array, so t2_limit gives one limit per row
         alarm = np.zeros(n, dtype=bool)
         scored = ~np.isnan(pval)
         alarm[scored] = pval[scored] < self.alpha
@@ -216,6 +218,8 @@ class Scorer:
             inv = np.asarray(inv).reshape(-1)
             for k, pat in enumerate(pats):
                 groups.append((partial[inv == k], np.flatnonzero(~pat)))
+        rows: slice | np.ndarray
+        cols: slice | np.ndarray
         for which, obs in groups:
             nobs[which] = obs.size
             if obs.size == 0:

@@ -9,7 +9,8 @@ what a summary, a chart or a report needs is kept in a bounded
 from __future__ import annotations
 
 import os
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 

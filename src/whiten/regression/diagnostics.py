@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -124,10 +124,10 @@ def collinearity_report(r: np.ndarray, names: list[str], *, exact_tol: float,
     phi = (vt ** 2) / (sc[:, None] ** 2)
     prop = phi / phi.sum(axis=0, keepdims=True)
     groups, gidx, sentences = [], [], []
-    for members, sentence in exact:
-        groups.append(tuple(members))
+    for dependent, sentence in exact:
+        groups.append(tuple(dependent))
         gidx.append(math.inf)
-        sentences.append(f"{_join(list(members))} are linearly dependent: {sentence}")
+        sentences.append(f"{_join(list(dependent))} are linearly dependent: {sentence}")
     for k in range(p - 1, -1, -1):  # worst direction first
         if not ci[k] > INDEX_THRESHOLD:
             continue

@@ -135,7 +135,8 @@ def fit_linear(
     Steps and costs (n rows, p coefficients): whitening O(n p) (O(n^2 p) for a dense
     error covariance); QR 4 n p^2 flops with the thin Q (3 n p^2 for CholeskyQR2 on
     the many-row path); each refinement step O(n p) in compensated arithmetic (Ogita,
-    Rump & Oishi, 2005); standard errors O(p^3) by a triangular solve. Collinearity diagnostics use the SVD of the p x p R.
+    Rump & Oishi, 2005); standard errors O(p^3) by a triangular solve. Collinearity diagnostics use the SVD
+    of the p x p R.
     No n x n matrix is formed except the user's ``error_cov``.
 
     Examples

@@ -160,7 +160,8 @@ def assemble(design: Design, sol: Solution, s, r_full, aside, tol, policy, *, rs
              + "Consider removing near-duplicate columns, centring polynomial terms, or ridge=...")
     weighted = "gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none")
     return LinearFit(
-        names=tuple(out_names), coef=read_only(coef), stderr=read_only(stderr), tvalues=read_only(tvals), pvalues=read_only(pvals),
+        names=tuple(out_names), coef=read_only(coef), stderr=read_only(stderr), tvalues=read_only(tvals),
+        pvalues=read_only(pvals),
         residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=float(fstat), f_pvalue=float(fp),
         loglik=ll, aic=aic, bic=bic, nobs=n, dof=dof, dof_model=dof_model, rank=rank, vif=read_only(vif),
         collinearity=coll, fitted=fitted if vectors is not None else read_only(fitted),

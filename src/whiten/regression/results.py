@@ -285,6 +285,7 @@ class LinearFit:
             return float(mean[0]) if one else mean
         if self._r is None:
             raise InputError("predict: intervals are not available for this fit (ridge by criterion)")
+        assert self._scale is not None  # every fit that keeps _r keeps its column scale too
         z = tri_solve(self._r, (design[:, cols] * self._scale[None, :]).T, trans=True)
         se = self.residual_sd * np.sqrt(np.einsum("ij,ij->j", z, z))
         if interval == "prediction":

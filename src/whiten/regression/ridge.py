@@ -101,8 +101,8 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     icpt = design.intercept
     xw = a[:, 1:] if icpt else a
     w1 = a[:, 0] if icpt else None
-    xc = _project_out(xw, w1) if icpt else xw.copy()
-    bc = _project_out(b, w1) if icpt else b.copy()
+    xc = _project_out(xw, w1) if w1 is not None else xw.copy()
+    bc = _project_out(b, w1) if w1 is not None else b.copy()
     k = xc.shape[1]
     if standardize:
         d = np.sqrt(np.einsum("ij,ij->j", xc, xc) / n)
@@ -113,17 +113,17 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
         d = np.ones(k)
     xs = xc / d[None, :]
     # SVD through the R of a QR (Golub & Kahan route, no Gram matrix)
-    qx, rx = householder_thin(xs) if n >= k else (None, None)
-    if qx is None:
-        u, sv, vt = np.linalg.svd(xs, full_matrices=False)
-    else:
+    if n >= k:
+        qx, rx = householder_thin(xs)
         ur, sv, vt = np.linalg.svd(rx)
         u = qx @ ur
+    else:
+        u, sv, vt = np.linalg.svd(xs, full_matrices=False)
     c = u.T @ bc
     perp = bc - u @ c
     rss_perp = float(perp @ perp)
-    ww = float(w1 @ w1) if icpt else 1.0
-    lev0 = (w1 ** 2) / ww if icpt else np.zeros(n)
+    ww = float(w1 @ w1) if w1 is not None else 1.0
+    lev0 = (w1 ** 2) / ww if w1 is not None else np.zeros(n)
     s2 = sv ** 2
     info_grid = info_scores = info_paths = None
     at_edge = False

@@ -13,8 +13,9 @@ import io
 import math
 import os
 import re
+from collections.abc import Mapping
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
 
@@ -183,18 +184,18 @@ class Section:
         self.key = key
         self.blocks: list = []
 
-    def paragraph(self, text: str) -> "Section":
+    def paragraph(self, text: str) -> Section:
         self.blocks.append(Paragraph(_text(text, "paragraph")))
         return self
 
-    def bullets(self, items) -> "Section":
+    def bullets(self, items) -> Section:
         items = tuple(_text(i, "bullet") for i in items)
         if items:
             self.blocks.append(Bullets(items))
         return self
 
     def table(self, frame: Any, caption: str, *, formats: Mapping[str, Any] | None = None,
-              show_index: bool = True, key: str = "", note: str = "") -> "Section":
+              show_index: bool = True, key: str = "", note: str = "") -> Section:
         """Add a table from a pandas DataFrame (copied; later changes to it do not show).
 
         Raises
@@ -209,7 +210,7 @@ class Section:
         self.blocks.append(Table(frame.copy(), caption, dict(formats or {}), bool(show_index), key, note))
         return self
 
-    def figure(self, image: Any, alt: str, *, caption: str = "", key: str = "") -> "Section":
+    def figure(self, image: Any, alt: str, *, caption: str = "", key: str = "") -> Section:
         """Add a picture: a matplotlib figure, PNG bytes, or a PNG file.
 
         Raises

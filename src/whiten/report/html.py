@@ -82,7 +82,8 @@ figcaption { font-size: .85rem; color: var(--muted); margin-top: .3rem; }
 .record dt { color: var(--muted); } .record dd { margin: 0; overflow-wrap: anywhere; }
 code, .hash { font-family: ui-monospace, "SFMono-Regular", Menlo, Consolas, monospace; font-size: .82rem;
   overflow-wrap: anywhere; }
-footer { margin-top: 1.5rem; font-size: .78rem; color: var(--muted); border-top: 1px solid var(--rule); padding-top: .5rem; }
+footer { margin-top: 1.5rem; font-size: .78rem; color: var(--muted); border-top: 1px solid var(--rule);
+  padding-top: .5rem; }
 @media (max-width: 40rem) {
   body { font-size: 15px; }
   .sheet { padding: 1rem .8rem 1.5rem; }

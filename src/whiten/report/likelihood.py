@@ -59,15 +59,15 @@ def likelihood_rows(result: Any, labels: Any = None):
         d2 = np.atleast_1d(np.asarray(result.d2, dtype=float))
         dof = np.atleast_1d(np.asarray(result.n_observed)).astype(np.int64)
         index = getattr(result, "index", None)
-        pv = np.full(d2.shape, np.nan)
+        pv: np.ndarray = np.full(d2.shape, np.nan)
         ok = dof > 0
         pv[ok] = stats.chi2.sf(d2[ok], dof[ok])
     elif hasattr(result, "loglik") and hasattr(result, "chi2") and hasattr(result, "dof"):
         ll = np.ravel(np.asarray(result.loglik, dtype=float))
         d2 = np.ravel(np.asarray(result.chi2, dtype=float))
         dof = np.full(d2.shape, int(result.dof), dtype=np.int64)
-        pv = getattr(result, "p_value", None)
-        pv = stats.chi2.sf(d2, dof) if pv is None else np.ravel(np.asarray(pv, dtype=float))
+        given = getattr(result, "p_value", None)
+        pv = stats.chi2.sf(d2, dof) if given is None else np.ravel(np.asarray(given, dtype=float))
         index = None
     else:
         raise InputError("result: expected whiten.gaussian_loglik(..., return_details=True) or "

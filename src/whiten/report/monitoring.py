@@ -159,9 +159,9 @@ def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
         if dt is not None:
             rep.health("Digits", f"About {float(dt):.1f} significant digits of each distance can be trusted "
                        "(from the baseline's condition estimate).", "good" if float(dt) >= 8 else "note")
-        jit = attrs.get("jitter")
-        if jit:
-            rep.health("Jitter", f"{format_number(jit, 3)} was added to the covariance diagonal before "
+        added = attrs.get("jitter")
+        if added:
+            rep.health("Jitter", f"{format_number(added, 3)} was added to the covariance diagonal before "
                        "factoring; the distances describe that repaired matrix.", "alert")
 
 

@@ -20,8 +20,9 @@ import lzma
 import os
 import shlex
 import sys
+from collections.abc import Iterable, Sequence
 from pathlib import Path
-from typing import Any, Iterable, Sequence
+from typing import Any
 
 from .._version import __version__
 
@@ -214,7 +215,7 @@ class Provenance:
 
     @classmethod
     def collect(cls, *, inputs: Iterable[str | os.PathLike] = (), model: str | os.PathLike | None = None,
-                command: str | Sequence[str] | None = None, extra: dict | None = None) -> "Provenance":
+                command: str | Sequence[str] | None = None, extra: dict | None = None) -> Provenance:
         """Fingerprint the files and stamp the time.
 
         Parameters

@@ -260,7 +260,7 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
         sec.paragraph("No near-dependence among the columns: every condition index is at most 30 "
                       "(the threshold of Belsley, Kuh & Welsch, 1980).")
     groups = list(getattr(col, "groups", ()) or ())
-    if groups:
+    if groups and col is not None:  # non-empty groups can only have come from col
         import pandas as pd
 
         frame = pd.DataFrame({"condition index": [float(v) for v in col.group_indices],

@@ -107,6 +107,16 @@ class StructuredCovariance:
     def _dense(self) -> np.ndarray:  # pragma: no cover - every subclass overrides
         raise NotImplementedError
 
+    def logdet(self) -> float:  # pragma: no cover - every subclass overrides
+        """``log det S``, computed from the structure (never from the dense matrix)."""
+        raise NotImplementedError
+
+    def _solve_cols(self, b: np.ndarray) -> np.ndarray:  # pragma: no cover - every subclass overrides
+        raise NotImplementedError
+
+    def _whiten_rows(self, rows: np.ndarray) -> np.ndarray:  # pragma: no cover - every subclass overrides
+        raise NotImplementedError
+
     # -------------------------------------------------------------- checks
     def _rhs(self, b: Any, name: str) -> np.ndarray:
         arr = np.asarray(b, dtype=np.float64)

@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -36,7 +37,8 @@ class BlockDiagonalCovariance(StructuredCovariance):
         sizes = [p.dim for p in parts]
         self._offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
         names = [p.columns for p in parts]
-        self._names = sum(names, []) if all(n is not None for n in names) else None
+        labelled = [n for n in names if n is not None]
+        self._names = [c for n in labelled for c in n] if len(labelled) == len(names) else None
         hs = [p.health for p in parts]
         self._health = FactorHealth(
             min(h.rcond for h in hs), min(h.rcond_scaled for h in hs), max(h.digits_lost for h in hs),

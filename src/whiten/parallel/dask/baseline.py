@@ -8,7 +8,8 @@ merges (:mod:`whiten.estimate.streaming`), so the two engines cannot drift.
 from __future__ import annotations
 
 import math
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -55,7 +56,8 @@ def _blocks(data: Any, columns: Sequence[str] | None, weight_column: str | None 
                 raise InputError(f"data: column {str(c)!r} of the dask DataFrame is not numeric (dtype {dt}); "
                                  "select numeric columns with columns=[...]")
         parts = data[take].to_delayed()
-        where = [(f"partition {k}", None) for k in range(len(parts))]
+        # (label, offset) per block: frames name their partitions, arrays give row offsets
+        where: list[tuple[str | None, int | None]] = [(f"partition {k}", None) for k in range(len(parts))]
         convert = _frame_values if weight_column is None else _frame_values_weighted
         return names, [(convert, part) for part in parts], where
     arr = data

@@ -23,7 +23,7 @@ def is_dask_collection(x: Any) -> bool:
 
 def require_dask():
     try:
-        import dask  # noqa: F401
+        import dask
         import dask.array  # noqa: F401
     except ImportError:  # pragma: no cover - only without the extra
         raise InputError("dask input needs the optional extra: pip install 'whiten[dask]'") from None

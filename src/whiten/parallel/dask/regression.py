@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import math
 import operator
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -249,4 +250,7 @@ def fit_linear(X: Any, y: Any, *, intercept: bool = True, weights: Any = None, r
                          "fit on the computed arrays")
     resid = sol.wresid
     fitted = ya - resid
-    return assemble(design, sol, s, r_full, aside, tol, rank_policy, rss=last["rss"], vectors=(fitted, resid))
+    # _DaskDesign has every Design attribute that assemble reads when rss= and vectors= are given (not the
+    # in-memory rows); a shared Protocol would have to cover the in-memory helpers too
+    return assemble(design, sol, s, r_full, aside, tol, rank_policy,  # type: ignore[arg-type]
+                    rss=last["rss"], vectors=(fitted, resid))
