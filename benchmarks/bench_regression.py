@@ -46,7 +46,7 @@ def run(quick: bool = False) -> list[dict]:
 
     coef, se = ours()
     ref_c, ref_se = peer_sm()
-    path = whiten.fit_linear(x, y).health.path
+    path = whiten.fit_linear(x, y).health.method
     dc = float(np.max(np.abs(coef - ref_c) / np.abs(ref_c)))
     ds = float(np.max(np.abs(se - ref_se) / ref_se))
     k = 3 if quick else 2
