@@ -283,7 +283,8 @@ def _limit_cached(p: int, lam: float, arl: float, draws: int, seed: int) -> Ewma
     from scipy import stats
 
     horizon = int(math.ceil(2.0 * arl + 20.0 / lam))
-    hi = float(stats.chi2.isf(1.0 / arl, p))  # every T2_t is chi-square(p): the limit lies below this
+    # every T2_t is chi-square(p), so the ARL at the 1 / (2 arl) quantile is at least 2 arl: h lies below it
+    hi = float(stats.chi2.isf(0.5 / arl, p))
     lo = 0.0
     recs = _records(p, lam, draws, horizon, hi, seed, "exact")
     rl_hi = _run_lengths(recs, hi, draws, horizon)
