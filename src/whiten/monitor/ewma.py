@@ -53,8 +53,9 @@ DEFAULT_DRAWS = 2000
 DEFAULT_SEED = 19920201
 _GROUPS = 20  # jackknife groups for the Monte Carlo standard errors
 _VARIANCES = ("exact", "asymptotic")
-EWMA_CAUTION = ("EWMA limits assume independent rows and the baseline's parameters known: autocorrelated "
-                "readings (or few reference rows) shorten the in-control run length.")
+EWMA_CAUTION = ("Caution: the EWMA and persistence limits assume independent rows and the baseline's parameters "
+                "known; autocorrelated readings (or few reference rows) shorten in-control run lengths and "
+                "raise false-alarm rates.")
 
 
 def check_lambda(lam: Any, name: str = "ewma") -> float:
