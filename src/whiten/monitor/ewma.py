@@ -158,8 +158,9 @@ def _arl_and_jackknife(rl: np.ndarray, horizon: int) -> tuple[float, np.ndarray]
     sums = np.stack([np.bincount(g, weights=row, minlength=_GROUPS) for row in parts])  # (3, G)
     cnt = np.bincount(g, minlength=_GROUPS).astype(float)
     tot = sums.sum(axis=1)
-    full = _arl_from_sums(*tot, float(n), horizon, mid)
-    loo = np.array([_arl_from_sums(*(tot - sums[:, k]), float(n) - cnt[k], horizon, mid) for k in range(_GROUPS)])
+    full = _arl_from_sums(tot[0], tot[1], tot[2], float(n), horizon, mid)
+    loo = np.array([_arl_from_sums(tot[0] - sums[0, k], tot[1] - sums[1, k], tot[2] - sums[2, k],
+                                   float(n) - cnt[k], horizon, mid) for k in range(_GROUPS)])
     return full, loo
 
 
@@ -221,7 +222,7 @@ def mewma_arl(p: int, lam: float, h: float, *, horizon: int = 2000, draws: int =
         raise InputError(f"horizon: expected at least 20 rows, got {horizon}")
     recs = _records(pp, lam, dd, horizon, float(h), ss, variance)
     full, loo = _arl_and_jackknife(_run_lengths(recs, float(h), dd, horizon), horizon)
-    return full, _jack_se(loo)
+    return float(full), _jack_se(loo)
 
 
 @dataclass(frozen=True)
@@ -291,7 +292,7 @@ def _limit_cached(p: int, lam: float, arl: float, draws: int, seed: int) -> Ewma
     rl_hi = _run_lengths(recs, hi, draws, horizon)
     if _arl_and_jackknife(rl_hi, horizon)[0] < arl:  # pragma: no cover - would contradict the chi-square margin
         raise InputError(f"ewma: could not bracket the limit for ARL {arl:g} (p={p}, lambda={lam:g})")
-    h = _root(recs, draws, horizon, lo, hi, arl)
+    h = float(_root(recs, draws, horizon, lo, hi, arl))
     groups = np.arange(draws) % _GROUPS
     loo = np.array([_root(recs, draws, horizon, lo, hi, arl, rows=groups != k) for k in range(_GROUPS)])
     full, loo_arl = _arl_and_jackknife(_run_lengths(recs, h, draws, horizon), horizon)
