@@ -34,9 +34,9 @@ def test_run_writes_files_and_explains(tmp_path):
     lines = cooling.run(tmp_path)
     names = sorted(p.name for p in tmp_path.iterdir())
     assert names == sorted(["cooling_healthy.csv", "cooling_test.csv", "cooling_baseline.json",
-                            "cooling_scores.csv", "cooling_distance.png", "cooling_qq.png",
+                            "cooling_scores.csv", "cooling_distance.png", "cooling_ewma.png", "cooling_qq.png",
                             "cooling_contributions.png"])
-    for png in ("cooling_distance.png", "cooling_qq.png", "cooling_contributions.png"):
+    for png in ("cooling_distance.png", "cooling_ewma.png", "cooling_qq.png", "cooling_contributions.png"):
         assert (tmp_path / png).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature
         assert mpimg.imread(tmp_path / png).ndim == 3
     s = pd.read_csv(tmp_path / "cooling_scores.csv", index_col="time", keep_default_na=False, na_values=[""])
@@ -47,6 +47,17 @@ def test_run_writes_files_and_explains(tmp_path):
     assert (fault.loc[fault["alarm"], "top_contributor"] == "flow").mean() > 0.9
     a, b = cooling.DRIFT_ROWS
     assert (s.iloc[a:b].query("alarm")["top_contributor"] == "dp_strainer").mean() > 0.9
+    # the drift: at the same in-control rate (EWMA limit for an ARL of 1 / alpha rows) the EWMA alarms
+    # earlier than the per-row distance, and names the drifting sensor
+    drift = s.iloc[a:b]
+    first_t2 = int(np.flatnonzero(drift["alarm"].to_numpy())[0])
+    first_ew = int(np.flatnonzero(drift["ewma_alarm"].to_numpy())[0])
+    assert first_ew < first_t2 - 10
+    assert (drift.loc[drift["ewma_alarm"], "ewma_top"] == "dp_strainer").mean() > 0.9
+    assert f"{first_ew} rows into the drift against {first_t2} for the per-row distance" in "\n".join(lines)
+    assert "= 1/alpha" in "\n".join(lines)
+    # no EWMA alarm on the healthy stretch before the first episode (250 rows at ARL 1000)
+    assert not s["ewma_alarm"].iloc[:cooling.FAULT_ROWS[0]].any()
     text = "\n".join(lines)
     assert "'flow'" in text and "'dp_strainer'" in text
     assert lines[-1].startswith("Caution: this is a statistical screen, not a protective function")

@@ -27,6 +27,17 @@ readings are scored on the sensors they have. Large files are read in
 chunks of --chunksize rows; the output is written to a temporary file and
 renamed into place at the end.
 
+With --ewma LAMBDA the multivariate EWMA statistic (Lowry et al. 1992) is
+charted too, rows taken in file order: ewma_t2, ewma_limit, ewma_alarm,
+ewma_top (sensor leading the smoothed vector), ewma_rows and smooth:<sensor>.
+Its limit is simulated for an in-control average run length of --ewma-arl rows
+(default 1/alpha, the run length of the per-row screen). Rows with a missing
+reading are held: not smoothed in, no EWMA value. With --persist K/M a row
+alarms when K of the last M rows exceed a per-row level set so that the rule
+alarms at rate alpha per healthy row (persist_count, persist_limit,
+persist_alarm). Both assume independent rows: autocorrelated readings
+shorten run lengths and raise the false-alarm rate.
+
 This is a statistical screen, not a protective function: alarms do not replace
 the plant's safety systems, and local codes take precedence.
 """
@@ -69,6 +80,14 @@ def add_parser(sub) -> None:
                    help="rows drawn one by one on the control chart (--chart, --report); a longer file is "
                         "pooled into bins of consecutive rows, each showing its largest d2, so no alarm "
                         "is hidden and memory stays flat (default: 20000)")
+    p.add_argument("--ewma", type=float, default=None, metavar="LAMBDA",
+                   help="also chart the multivariate EWMA drift statistic with smoothing weight LAMBDA in (0, 1] "
+                        "(0.05-0.2 for slow drifts)")
+    p.add_argument("--ewma-arl", type=float, default=None, metavar="ROWS",
+                   help="in-control average run length the EWMA limit is simulated for (default 1/alpha)")
+    p.add_argument("--persist", default=None, metavar="K/M",
+                   help="also alarm when K of the last M rows exceed a per-row level chosen so that this rule's "
+                        "false-alarm rate per healthy row is alpha (e.g. 3/5)")
     p.set_defaults(func=run)
 
 
@@ -81,6 +100,18 @@ def run(args) -> int:
     check_alpha(args.alpha)
     if args.fdr is not None:
         check_alpha(args.fdr, "--fdr")
+    if args.ewma is not None:
+        from ..monitor.ewma import _check_arl, check_lambda
+
+        check_lambda(args.ewma, "--ewma")
+        if args.ewma_arl is not None:
+            _check_arl(args.ewma_arl, "--ewma-arl")
+    elif args.ewma_arl is not None:
+        raise InputError("--ewma-arl: given without --ewma; add --ewma LAMBDA (e.g. --ewma 0.1)")
+    if args.persist is not None:
+        from ..monitor.persistence import parse_persist
+
+        parse_persist(args.persist, "--persist")
     if args.chunksize is not None and args.chunksize < 1:
         raise InputError(f"--chunksize: must be a positive integer, got {args.chunksize}")
     if args.chart_points < 1:
@@ -105,7 +136,8 @@ def run(args) -> int:
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
     digest = score_file(baseline, args.data, out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
                         index_column=args.index_column, chunksize=args.chunksize, force=args.force,
-                        chart_points=args.chart_points, worst=_WORST, progress=None)
+                        chart_points=args.chart_points, worst=_WORST, progress=None,
+                        ewma=args.ewma, ewma_arl=args.ewma_arl, persist=args.persist)
     at = digest.attrs
     sensors = list(at["sensors"])
     n_rows = digest.n_rows
@@ -120,6 +152,7 @@ def run(args) -> int:
     ]
     if args.fdr is not None:
         lines.append(f"flagged by Benjamini-Hochberg at FDR {args.fdr:g} across the file: {digest.n_fdr or 0}")
+    lines.extend(_drift_lines(digest))
     if digest.n_partial or digest.n_none:
         lines.append(f"rows with missing readings: {digest.n_partial} scored on the sensors present, "
                      f"{digest.n_none} with no sensor (not scored)")
@@ -175,6 +208,28 @@ def run(args) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
     return 0
+
+
+def _drift_lines(digest) -> list[str]:
+    """The EWMA and persistence lines of the summary (from the digest), with their caution."""
+    drift = getattr(digest, "drift", None) or {}
+    at = digest.attrs
+    out: list[str] = []
+    if "ewma" in drift:
+        ew = drift["ewma"]
+        first = "none" if ew["first_alarm_row"] is None else f"first at data row {ew['first_alarm_row']}"
+        out.append(f"drift (EWMA): {at['ewma_basis']}")
+        out.append(f"  EWMA alarms: {ew['n_alarm']} ({first}); {ew['n_held']} rows held for a missing reading")
+    if "persist" in drift:
+        pr = drift["persist"]
+        first = "none" if pr["first_alarm_row"] is None else f"first at data row {pr['first_alarm_row']}"
+        out.append(f"drift ({at['persist_basis']})")
+        out.append(f"  persistence alarms: {pr['n_alarm']} ({first})")
+    if out:
+        from ..monitor.ewma import EWMA_CAUTION
+
+        out.append(f"  {EWMA_CAUTION}")
+    return out
 
 
 def _time_axis(labels):

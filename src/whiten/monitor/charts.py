@@ -8,6 +8,9 @@ be drawn from threads and servers without a display.
 
 * :func:`distance_chart` -- squared distance per row on a log scale, the
   alarm limit, alarms marked, unscored rows ticked along the bottom.
+* :func:`ewma_chart` -- the multivariate EWMA statistic (``ewma=`` of
+  :func:`whiten.monitor.score`) with its limit, alarms marked, held rows
+  ticked along the bottom.
 * :func:`qq_chart` -- ordered squared distances of the reference rows against
   chi-square(p) quantiles: points along the diagonal support the Gaussian
   assumption; a bend upwards at the right means heavier tails than Gaussian.
@@ -29,7 +32,7 @@ from ..errors import InputError
 from ..io.atomic import check_writable, write_bytes
 from .digest import need_score_columns as _need
 
-__all__ = ["distance_chart", "qq_chart", "contribution_chart"]
+__all__ = ["distance_chart", "ewma_chart", "qq_chart", "contribution_chart"]
 
 # a palette of our own: slate for ordinary rows, amber for the limit, crimson for alarms
 _INK = "#2f3e4e"
@@ -144,6 +147,59 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
         ax.text(1.0, 1.02, sub, transform=ax.transAxes, ha="right", fontsize=8, color=_INK)
     ax.set_xlabel("row" if time is None else "time", fontsize=9, color=_INK)
     ax.set_ylabel("d2 (log scale)", fontsize=9, color=_INK)
+    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=4)
+    fig.tight_layout()
+    return _save(fig, path, force)
+
+
+def ewma_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, title: str | None = None,
+               force: bool = False) -> Path:
+    """Control chart of the MEWMA statistic ``ewma_t2`` per row with its limit and alarms.
+
+    ``scores`` is a score table made with ``ewma=``; other parameters as for
+    :func:`distance_chart`. Rows held for a missing reading (no EWMA value)
+    are ticked along the bottom.
+
+    Examples
+    --------
+    >>> import os, tempfile, numpy as np, whiten
+    >>> from whiten.monitor import charts, score
+    >>> g = whiten.Gaussian([0.0, 0.0], [[1.0, 0.5], [0.5, 1.0]], columns=["a", "b"])
+    >>> s = score(g, np.random.default_rng(0).normal(size=(60, 2)), phase="known", ewma=0.2, ewma_arl=100)
+    >>> charts.ewma_chart(s, os.path.join(tempfile.mkdtemp(), "ewma.png")).read_bytes()[:4] == b"\\x89PNG"
+    True
+    """
+    _need(scores, ["ewma_t2", "ewma_limit", "ewma_alarm"])
+    check_writable(path, force=force, what="chart")
+    n = len(scores)
+    x = np.arange(n) if time is None else np.asarray(time)
+    if len(x) != n:
+        raise InputError(f"time: expected {n} positions, got {len(x)}")
+    t2 = scores["ewma_t2"].to_numpy(dtype=float)
+    lim = scores["ewma_limit"].to_numpy(dtype=float)
+    alarm = scores["ewma_alarm"].to_numpy(dtype=bool)
+    ok = ~np.isnan(t2)
+    floor = float(np.min(t2[ok & (t2 > 0)])) if np.any(ok & (t2 > 0)) else 1e-3
+    t2 = np.where(ok & (t2 <= 0), floor, t2)
+    fig = _figure(9.0, 3.2)
+    ax = fig.add_subplot(1, 1, 1)
+    _style(ax)
+    ax.set_yscale("log")
+    ax.plot(x[ok], t2[ok], color=_OK, linewidth=0.9, zorder=1, label="EWMA statistic")
+    ax.plot(x, lim, color=_LIMIT, linewidth=1.4, zorder=3, label="limit")
+    if alarm.any():
+        ax.scatter(x[alarm], t2[alarm], s=10, color=_ALARM, zorder=4, label=f"alarm ({int(alarm.sum())})")
+    if (~ok).any():
+        ax.plot(x[~ok], np.full((~ok).sum(), floor), linestyle="none", marker="|", color=_INK, markersize=9,
+                label=f"held: a reading missing ({int((~ok).sum())})")
+    lam = scores.attrs.get("ewma_lambda")
+    info = scores.attrs.get("ewma_limit") or {}
+    if lam is not None and info:
+        ax.text(1.0, 1.02, f"lambda {lam:g}; limit for an in-control ARL of {info.get('arl', float('nan')):g} rows",
+                transform=ax.transAxes, ha="right", fontsize=8, color=_INK)
+    ax.set_title(title or "Multivariate EWMA statistic per row", loc="left", fontsize=10, color=_INK)
+    ax.set_xlabel("row" if time is None else "time", fontsize=9, color=_INK)
+    ax.set_ylabel("EWMA T2 (log scale)", fontsize=9, color=_INK)
     ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=4)
     fig.tight_layout()
     return _save(fig, path, force)

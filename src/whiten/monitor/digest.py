@@ -89,6 +89,7 @@ class ScoreDigest:
         # what whiten.monitor.score_file read: the file, and its columns not in the model
         self.source: str | None = None
         self.ignored_columns: list[str] = []
+        self.drift: dict = {}  # per drift rule (ewma=, persist=): alarms and first alarm row, set by score_file
 
     # ------------------------------------------------------------------ feed
     @classmethod

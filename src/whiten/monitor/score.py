@@ -20,6 +20,10 @@ Per-sensor columns follow one pattern, ``<kind>:<sensor>``:
 ``dev:<sensor>``    plain standardized deviation (x - mean) / sd
 
 Unobserved sensors get NaN in all three.
+
+With ``ewma=`` and ``persist=`` the drift columns of :mod:`whiten.monitor.drift`
+follow (``ewma_t2``, ``ewma_limit``, ``ewma_alarm``, ``ewma_top``, ``ewma_rows``,
+``smooth:<sensor>``; ``persist_count``, ``persist_limit``, ``persist_alarm``).
 """
 
 from __future__ import annotations
@@ -29,7 +33,9 @@ from collections.abc import Sequence
 from typing import Any
 
 from .. import _engines
+from ..errors import InputError
 from ..io.tables import open_table
+from .drift import DriftRules
 from .fdr import add_fdr
 from .scorer import KINDS, Scorer, column_name
 
@@ -46,7 +52,8 @@ def _read_path(path: str | os.PathLike, columns: Sequence[str]):
 
 
 def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "marginalize",
-          phase: str = "new", fdr: float | None = None, order: Sequence[str] | None = None):
+          phase: str = "new", fdr: float | None = None, order: Sequence[str] | None = None,
+          ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None):
     """Score rows against a baseline: squared distance, exact p-value, alarm, and contributions.
 
     Parameters
@@ -73,19 +80,37 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
         ``alarm`` stays the per-row test.
     order : sequence of str, optional
         Sensor order of the ``chain:`` decomposition (default: the baseline's).
+    ewma : float, optional
+        Also chart the multivariate EWMA statistic (Lowry et al. 1992) with
+        smoothing weight ``ewma`` = lambda in (0, 1] (0.05-0.2 for slow
+        drifts), rows taken in input order; see :mod:`whiten.monitor.ewma`.
+    ewma_arl : float, optional
+        In-control average run length (rows) the EWMA limit is set for, by
+        simulation; default ``1 / alpha``, the run length of the per-row
+        screen, so both alarm equally often on healthy rows.
+    persist : (k, m) or "k/m", optional
+        Also the persistence rule: alarm when k of the last m rows exceed a
+        per-row level chosen so that the rule's false-alarm rate per row is
+        ``alpha`` for independent rows (binomial tail); see
+        :mod:`whiten.monitor.persistence`.
 
     Returns
     -------
-    pandas.DataFrame, shape (N, 7 + 3p) (+2 with ``fdr``)
+    pandas.DataFrame, shape (N, 7 + 3p) (+2 with ``fdr``, +5+p with ``ewma``, +3 with ``persist``)
         Columns as listed in the module docstring; ``.attrs`` records alpha,
-        phase, the law used (``limit_basis``) and the baseline's digits trusted.
+        phase, the law used (``limit_basis``) and the baseline's digits trusted;
+        with ``ewma`` the limit, its Monte Carlo error and a caution
+        (``ewma_limit``, ``ewma_basis``, ``ewma_caution``); with ``persist``
+        ``persist_row_level``, ``persist_rate`` and ``persist_basis``.
 
     Raises
     ------
     InputError
         Column mismatch (lists missing and extra), non-numeric cells (row and
         column), NaN with ``missing="error"``, alpha/fdr outside (0, 1), unknown
-        phase, too few reference rows for the phase (m <= p).
+        phase, too few reference rows for the phase (m <= p); ewma outside
+        (0, 1], ewma_arl not above 1, persist not 1 <= k <= m; ewma or persist
+        with a dask collection (compute it, or use score_file).
 
     Notes
     -----
@@ -106,8 +131,24 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
     """
     engine = _engines.engine_for(data)
     if engine is not None:  # e.g. dask input: a lazy frame back from that engine
+        if ewma is not None or ewma_arl is not None or persist is not None:
+            raise InputError("ewma/persist: the drift rules need the rows in order in one pass; compute the dask "
+                             "collection first, or write it to a file and use whiten.monitor.score_file")
         return engine.score(baseline, data, alpha=alpha, missing=missing, phase=phase, fdr=fdr, order=order)
     scorer = Scorer(baseline, alpha=alpha, missing=missing, phase=phase, order=order)
     if isinstance(data, (str, os.PathLike)):
         data = _read_path(data, scorer.columns)
-    return scorer.frame(data, fdr=fdr)
+    drift = DriftRules(scorer, ewma=ewma, ewma_arl=ewma_arl, persist=persist)
+    if not drift.active:
+        return scorer.frame(data, fdr=fdr)
+    import pandas as pd
+
+    x, index = scorer.rows(data)
+    cols = scorer.score_array(x)
+    drift.add(x, cols)
+    if fdr is not None:
+        add_fdr(cols, fdr)
+    df = pd.DataFrame(cols, index=index if index is not None else pd.RangeIndex(x.shape[0]))
+    df.attrs.update(scorer.attrs(fdr))
+    df.attrs.update(drift.attrs())
+    return df

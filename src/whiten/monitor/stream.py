@@ -19,6 +19,7 @@ from ..io.atomic import atomic_open, check_writable, same_file
 from ..io.tables import Table, open_table, write_csv_chunk
 from ..io.tables import progress as _progress
 from .digest import ScoreDigest
+from .drift import DriftRules
 from .fdr import add_fdr, bh_adjust
 from .limits import check_alpha
 from .scorer import Scorer
@@ -30,7 +31,8 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
                alpha: float = 0.001, missing: str = "marginalize", phase: str = "new",
                fdr: float | None = None, order: Sequence[str] | None = None,
                index_column: str | None = None, chunksize: int | None = None, force: bool = False,
-               chart_points: int = 20_000, worst: int = 5, progress: bool | None = False) -> ScoreDigest:
+               chart_points: int = 20_000, worst: int = 5, progress: bool | None = False,
+               ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None) -> ScoreDigest:
     """Score every row of a table file against a baseline and write the score table as CSV.
 
     Parameters
@@ -58,13 +60,20 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         Passed to the :class:`~whiten.monitor.ScoreDigest` returned.
     progress : bool or None
         A progress bar on stderr: ``None`` when stderr is a terminal.
+    ewma, ewma_arl, persist
+        The drift rules, as for :func:`whiten.monitor.score`: the smoothed
+        vector and the persistence window carry from one chunk to the next,
+        so the columns equal those of one in-memory call on the whole file.
 
     Returns
     -------
     ScoreDigest
         Counts, the worst rows whole and the control-chart trace; also
         ``source`` (the file read) and ``ignored_columns`` (its columns not in
-        the model, the index column aside).
+        the model, the index column aside); with ``ewma``/``persist``,
+        ``drift`` holds per rule the alarms, the 0-based data row of the
+        first (None if none) and, for the EWMA, the rows held for a missing
+        reading; the settings and limits are in ``attrs``.
 
     Raises
     ------
@@ -92,6 +101,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     import pandas as pd
 
     scorer = Scorer(baseline, alpha=alpha, missing=missing, phase=phase, order=order)
+    drift = DriftRules(scorer, ewma=ewma, ewma_arl=ewma_arl, persist=persist)
     if fdr is not None:
         fdr = check_alpha(fdr, "fdr")
     table = data_path if isinstance(data_path, Table) else open_table(data_path)
@@ -99,7 +109,8 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     if same_file(out, table.path):
         raise InputError(f"output: {str(out)!r} names the data file being read; write the scores elsewhere")
     cols = table.select(scorer.columns, index_column=index_column, what="the model")
-    digest = ScoreDigest(scorer.columns, attrs=scorer.attrs(fdr), worst=worst, chart_points=chart_points)
+    digest = ScoreDigest(scorer.columns, attrs={**scorer.attrs(fdr), **drift.attrs()}, worst=worst,
+                         chart_points=chart_points)
     digest.source = str(table.path)
     digest.ignored_columns = [c for c in table.columns if c not in scorer.columns and c != index_column]
 
@@ -115,7 +126,9 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     n_rows = 0
     with atomic_open(out, "w", force=force, what="output") as fh:
         for k, chunk in _numbered(passes("scoring" if adjusted is None else "pass 2/2")):
-            scores = scorer.score_array(_values(chunk, scorer, table, k))
+            x = _values(chunk, scorer, table, k)
+            scores = scorer.score_array(x)
+            drift.add(x, scores)
             m = len(chunk)
             if adjusted is not None and fdr is not None:
                 if n_rows + m > adjusted.shape[0]:
@@ -129,6 +142,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
             n_rows += m
         if adjusted is not None and n_rows != adjusted.shape[0]:
             raise InputError(f"{table.where} changed while it was read twice for fdr; score it again")
+    digest.drift = drift.summary()
     return digest
 
 
