@@ -27,6 +27,7 @@ column coordinates (the power-of-two equilibration; independent of units).
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 
@@ -61,7 +62,7 @@ def _split(a):
     return hi, a - hi
 
 
-def refine_given(design: Design, s: np.ndarray, sol: Solution, max_steps: int = 6) -> Solution:
+def refine_given(design: Any, s: np.ndarray, sol: Solution, max_steps: int = 6) -> Solution:
     """Refine a WLS/GLS solution against the user's weights or error covariance exactly as given.
 
     The residuals ``b - S v - A x`` and ``A^T v`` are formed in double-double
@@ -137,7 +138,7 @@ def refine_given(design: Design, s: np.ndarray, sol: Solution, max_steps: int = 
     return out
 
 
-def data_sensitivity(design, s: np.ndarray, sol: Solution) -> float | None:
+def data_sensitivity(design: Any, s: np.ndarray, sol: Solution) -> float | None:
     """First-order relative change (max-norm, unit-length columns) of the coefficients per unit of ``eps``.
 
     Multiply by ``EPS`` for the worst change caused by a relative change of
@@ -221,7 +222,7 @@ class Statements:
         self.digits_computed = sensitivity_digits(self.solve_error)
 
 
-def _cov_health(design, sol, s):
+def _cov_health(design: Any, sol, s):
     from .results import ErrorCovHealth
 
     kind = whitening_kind(design)
