@@ -40,6 +40,11 @@ from .solve import Solution
 __all__ = ["refine_given", "data_sensitivity", "whitening_kind"]
 
 
+def _in_memory(design: Any) -> bool:
+    """The rows are at hand (an in-memory :class:`Design`, not a distributed engine's stand-in)."""
+    return isinstance(design, Design)
+
+
 def whitening_kind(design) -> str:
     """``"none"`` (OLS), ``"weights"`` (WLS) or ``"matrix"`` (GLS)."""
     if getattr(design, "factor", None) is not None:
@@ -147,7 +152,7 @@ def data_sensitivity(design: Any, s: np.ndarray, sol: Solution) -> float | None:
     Cost O(n p^2) (O(n^2 p) with an error covariance): the p x n map
     ``R^{-1} Q^T L^{-1}`` is formed once for this estimate and not used for anything else.
     """
-    if not isinstance(design, Design) or sol.var_rows is not None or not sol.cols:
+    if not _in_memory(design) or sol.var_rows is not None or not sol.cols:
         return None
     cols = sol.cols
     kind = whitening_kind(design)
@@ -199,7 +204,7 @@ def jitter_effect(design, s: np.ndarray, sol: Solution) -> float:
     First order: ``dx = C A^T (S + jI)^{-1} (j v)`` with ``v = (S + jI)^{-1} r``.
     """
     f_ = getattr(design, "factor", None)
-    if f_ is None or not f_.jitter > 0 or not isinstance(design, Design) or not sol.cols:
+    if f_ is None or not f_.jitter > 0 or not _in_memory(design) or not sol.cols:
         return 0.0
     cols = sol.cols
     a = design.raw_rows(0, design.n)[:, cols] * s[cols][None, :]
@@ -230,7 +235,7 @@ def _cov_health(design: Any, sol, s):
         return None
     if kind == "weights":
         raw = math.nan
-        if isinstance(design, Design):
+        if _in_memory(design):
             w = design.weights if design.weights is not None else design.sqrt_w ** 2
             raw = float(np.max(w) / np.min(w))
         return ErrorCovHealth("weights", 1.0, raw, 0.0, 0.0, 0.0)
