@@ -139,8 +139,8 @@ def _report(fit, args, preds) -> str:
     lines.append("-- numerical health --")
     lines.append(f"  condition number {h.condition_number:.3g} with unit-length columns "
                  f"({h.condition_number_raw:.3g} as given; {h.condition_number_fitted:.3g} for the columns fitted)")
-    lines.append(f"  digits you can trust: {h.digits_solved:.1f} for these data exactly as given, "
-                 f"{h.digits_trusted:.1f} if the data's last digit were uncertain")
+    lines.append(f"  digits you can trust: {h.digits_solved:.1f} computed right for the data exactly as given; "
+                 f"{h.digits_trusted:.1f} survive a change in the data's last digit")
     ref = (f"{h.refinement_steps} refinement step(s) with {h.residual_arithmetic} residuals, "
            f"{'converged' if h.refinement_converged else 'stopped'} (last correction {h.last_correction:.1g})"
            if h.refinement_steps else "no refinement")

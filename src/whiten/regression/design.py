@@ -35,6 +35,8 @@ class Design:
     sqrt_w: np.ndarray | None
     factor: Any              # whiten.Factor of the error covariance, or None
     index: Any
+    weights: np.ndarray | None = None    # the user's weights exactly as given (refinement uses them)
+    error_cov: np.ndarray | None = None  # the user's error covariance exactly as given (float64)
 
     @property
     def n(self) -> int:
@@ -137,10 +139,14 @@ def prepare_design(x, y, intercept, weights, error_cov) -> Design:
             raise InputError(f"weights: row {int(bad[0])} has weight {wv[bad[0]]:g}; weights must be positive "
                              "(to exclude a row, remove it explicitly)")
         sqrt_w = np.sqrt(wv)
+    else:
+        wv = None
     factor = None
+    cov = None
     if error_cov is not None:
         shape = np.shape(error_cov)
         if shape != (n, n):
             raise InputError(f"error_cov: expected shape ({n}, {n}) for {n} rows, got {shape}")
         factor = cholesky(error_cov)
-    return Design(xv, yv, list(names), bool(intercept), sqrt_w, factor, index)
+        cov = np.asarray(error_cov, dtype=np.float64)
+    return Design(xv, yv, list(names), bool(intercept), sqrt_w, factor, index, weights=wv, error_cov=cov)

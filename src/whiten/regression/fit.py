@@ -39,6 +39,7 @@ from .. import _engines
 from .._numerics import EPS
 from ..errors import InputError
 from ..linalg.qr import pow2_column_scale
+from .accuracy import refine_given
 from .design import prepare_design
 from .inference import assemble
 from .results import LinearFit
@@ -187,4 +188,6 @@ def fit_linear(
         path = "blocked-tsqr->householder" if use_blocked else "householder"
         r_full, aside, sol = dense_solution(a, b, s, tol, rank_policy, names, MAX_REFINE, refine is not False,
                                              notes, path=path)
+        if refine is not False:
+            sol = refine_given(design, s, sol, MAX_REFINE)
     return assemble(design, sol, s, r_full, aside, tol, rank_policy)

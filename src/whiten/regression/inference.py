@@ -15,11 +15,11 @@ import math
 import numpy as np
 from scipy import stats
 
-from .._numerics import EPS
 from .._settings import current
 from .._warn import warn
 from ..errors import ConditioningWarning, InputError, RankDeficiencyWarning
 from ..linalg.qr import condition_2, qr_r, tri_solve
+from . import accuracy
 from .design import Design
 from .diagnostics import collinearity_report, describe_dependence, vif_from_r
 from .results import FitHealth, LinearFit
@@ -133,29 +133,31 @@ def assemble(design: Design, sol: Solution, s, r_full, aside, tol, policy, *, rs
         kept = [j for j in range(p) if j not in aside]
         cond_fit = scaled_condition(qr_r(r_full[:, kept])[: len(kept), : len(kept)])
     vif = _vif(design, sol, r_full, aside, dep_support)
-    # error bound: eps * (k + k^2 tan theta)
+    # (a) sensitivity to the data; (b) accuracy of the computation (see whiten.regression.accuracy)
     axn = math.sqrt(ess + (float(rx[0] ** 2) if (design.intercept and rx is not None) else 0.0))
     tan_t = math.sqrt(rss) / axn if axn > 0 else math.inf
-    bound = EPS * (cond_fit + cond_fit ** 2 * tan_t)
-    digits = float(min(15.9, max(0.0, -math.log10(bound)))) if bound > 0 else 15.9
-    if sol.steps > 0:
-        lc = sol.last_corr if math.isfinite(sol.last_corr) else 1.0
-        solved = 15.6 if sol.converged and lc <= 2 * EPS else float(min(15.6, max(0.0, -math.log10(max(lc, EPS)))))
-    else:
-        solved = digits
+    st = accuracy.statements(design, sol, s, cond_fit, tan_t)
+    bound, digits, solved = st.error_bound, st.digits_data, st.digits_computed
+    more = accuracy.derived_digits(st, design, sol, s, beta, se, tv, pv, dof, rss, ll, n)
     health = FitHealth(
         method=sol.method, condition_number=cond, condition_number_raw=cond_raw, condition_number_fitted=cond_fit,
         error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=sol.steps,
         refinement_converged=bool(sol.converged), last_correction=sol.last_corr,
         residual_arithmetic=sol.arithmetic, rank=rank, n_columns=p, rank_tol=tol,
-        set_aside=tuple(names[j] for j in aside), dependencies=tuple(dep_sentences), notes=tuple(sol.notes))
+        set_aside=tuple(names[j] for j in aside), dependencies=tuple(dep_sentences), notes=tuple(sol.notes),
+        solve_error=st.solve_error, error_cov=st.error_cov, **more)
     opts = current()
-    if 15.95 - digits > opts.digits_warn:
+    if 15.95 - min(digits, solved) > opts.digits_warn:
+        cov_words = ""
+        if st.error_cov is not None and st.error_cov.kind == "matrix":
+            cov_words = (f" The error covariance itself loses about {st.error_cov.digits_lost:.1f} digits "
+                         f"(scaled condition {st.error_cov.condition:.3g}"
+                         + (f", jitter {st.error_cov.jitter:.3g}" if st.error_cov.jitter > 0 else "") + ").")
         warn(ConditioningWarning,
              f"only about {digits:.1f} significant digits of the coefficients survive a change of one unit in "
-             f"the last digit of the data (scaled condition number {cond_fit:.3g}, residual/fit ratio "
-             f"{tan_t:.2g}, first-order error bound {bound:.2g}); for the data exactly as given the solve "
-             f"reached about {solved:.1f} digits ({sol.steps} refinement steps). "
+             f"the last digit of the data (sensitivity bound {bound:.2g}; scaled condition number "
+             f"{cond_fit:.3g}); for the data exactly as given about {solved:.1f} digits were computed right "
+             f"({sol.steps} refinement steps).{cov_words} "
              + (" ".join(s.rstrip(".") + "." for s in coll.sentences) + " " if coll.sentences else "")
              + "Consider removing near-duplicate columns, centring polynomial terms, or ridge=...")
     weighted = "gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none")

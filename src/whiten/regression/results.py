@@ -22,7 +22,39 @@ from ..linalg.qr import tri_solve
 from .design import INTERCEPT_NAME
 from .diagnostics import CollinearityReport
 
-__all__ = ["FitHealth", "RidgeInfo", "LinearFit", "t_quantile"]
+__all__ = ["FitHealth", "ErrorCovHealth", "RidgeInfo", "LinearFit", "t_quantile"]
+
+
+@dataclasses.dataclass(frozen=True)
+class ErrorCovHealth:
+    """Numerical health of the weights or error covariance of a WLS/GLS fit.
+
+    Attributes
+    ----------
+    kind : str
+        ``"weights"`` (WLS) or ``"matrix"`` (GLS).
+    condition : float
+        Condition estimate of the covariance with its diagonal scaled to one
+        (``1 / rcond_scaled``; 1 for weights, whose diagonal scaling is exact).
+    condition_raw : float
+        The same without scaling (``max(w) / min(w)`` for weights).
+    digits_lost : float
+        ``log10(condition)``: digits a solve with the covariance may lose.
+    jitter : float
+        Added to the diagonal before factoring (0 when none).
+    jitter_effect : float
+        Relative change of the coefficients caused by that jitter (first order).
+    """
+
+    kind: str
+    condition: float
+    condition_raw: float
+    digits_lost: float
+    jitter: float
+    jitter_effect: float
+
+    def to_dict(self) -> dict:
+        return json_ready(dataclasses.asdict(self))
 
 
 @dataclasses.dataclass(frozen=True)
@@ -44,20 +76,32 @@ class FitHealth:
         Scaled condition number of the columns actually fitted (after any were
         set aside).
     error_bound : float
-        First-order bound on the relative error of the coefficients caused by
-        a relative perturbation of one unit in the last place of the data:
-        ``eps * (k + k^2 * tan(theta))`` with ``k`` the fitted condition number
-        and ``tan(theta) = ||r|| / ||A x||`` (Wedin, 1973; Higham, 2002, §20.1).
+        *Sensitivity to the data*: first-order bound on the relative change
+        (max-norm, unit-length columns) of the coefficients when every input
+        (``X``, ``y``, weights, error covariance) changes by one unit in its last
+        digit: the componentwise condition of the problem posed times ``eps``
+        (see :mod:`whiten.regression.accuracy`). Where the rows are not at hand
+        (dask input) the normwise bound ``eps * (k + k^2 * tan(theta))`` (Wedin, 1973).
     digits_trusted : float
-        ``-log10(error_bound)``, capped at 15.9: significant digits of the
-        coefficients that survive a change of one unit in the last digit of the
-        data (a worst-case, first-order statement about the *problem*).
+        Statement (a), *digits that survive the data's last digit*:
+        ``-log10(error_bound)``, capped at 15.65. A statement about the problem,
+        not the computation.
     digits_solved : float
-        Significant digits to which the problem *as given* was solved: from the
-        size of the last refinement correction (15.6 when refinement converged to
-        working precision); equal to ``digits_trusted`` when refinement was skipped.
-        With exactly known data (integers, designed levels) this is the figure
-        that counts.
+        Statement (b), *digits computed right for the data as given*:
+        ``-log10(solve_error)``, capped at 15.65. With exactly known data
+        (integers, designed levels) this is the figure that counts.
+    solve_error : float
+        Estimated relative error (same norm) of the computed coefficients for the
+        data exactly as given, every rounding included: the last refinement
+        correction when refinement in the given data converged; otherwise the
+        roundings of the row weighting/whitening (bounded through the
+        sensitivity) and any jitter's effect.
+    error_cov : ErrorCovHealth or None
+        Health of the weights or error covariance (None for OLS).
+    digits_stderr, digits_tvalues, digits_pvalues, digits_conf_int, digits_vif, digits_loglik : float
+        Estimated correct significant digits of those results for the data as
+        given (the smallest over coefficients): never more than the solve that
+        produced them. NaN where the quantity is not reported.
     refinement_steps : int
     refinement_converged : bool
     last_correction : float
@@ -93,10 +137,19 @@ class FitHealth:
     set_aside: tuple
     dependencies: tuple
     notes: tuple
+    solve_error: float = float("nan")
+    error_cov: ErrorCovHealth | None = None
+    digits_stderr: float = float("nan")
+    digits_tvalues: float = float("nan")
+    digits_pvalues: float = float("nan")
+    digits_conf_int: float = float("nan")
+    digits_vif: float = float("nan")
+    digits_loglik: float = float("nan")
 
     def to_dict(self) -> dict:
-        d = dataclasses.asdict(self)
-        return {k: (list(v) if isinstance(v, tuple) else json_number(v)) for k, v in d.items()}
+        d = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
+        return {k: (list(v) if isinstance(v, tuple) else (v.to_dict() if hasattr(v, "to_dict") else json_number(v)))
+                for k, v in d.items()}
 
 
 

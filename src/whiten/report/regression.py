@@ -136,10 +136,16 @@ def _health(rep: Report, fit: Any) -> None:
                f"{format_number(h.condition_number, 3)} ({format_number(h.condition_number_raw, 3)} as given; "
                f"{format_number(h.condition_number_fitted, 3)} for the columns fitted).", tone)
     solved = getattr(h, "digits_solved", None)
-    words = (f"About {trusted:.1f} significant digits of the coefficients survive a change of one unit in the "
-             "last digit of the data (a first-order worst case)")
+    words = (f"Sensitivity to the data: about {trusted:.1f} significant digits of the coefficients survive a "
+             "change of one unit in the last digit of every input (a first-order worst case)")
     if solved is not None:
-        words += f"; the problem as given was solved to about {float(solved):.1f} digits"
+        words += (f". Accuracy of the computation: for the data exactly as given, about {float(solved):.1f} "
+                  "digits were computed right, every rounding step included")
+    cov = getattr(h, "error_cov", None)
+    if cov is not None and cov.kind == "matrix":
+        words += (f". The error covariance loses about {cov.digits_lost:.1f} digits (scaled condition "
+                  f"{format_number(cov.condition, 3)}" + (f", jitter {format_number(cov.jitter, 3)}" if cov.jitter
+                                                          else "") + ")")
     rep.health("Digits you can trust", words + ".", tone)
     if h.refinement_steps:
         ref = (f"{h.refinement_steps} step(s) of iterative refinement with {h.residual_arithmetic} residuals, "
@@ -235,8 +241,12 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
                    note=f"adjusted {100 * float(getattr(fit, 'adj_r_squared', np.nan)):.4g}%")
     rep.key_figure("Residual sd", float(fit.residual_sd), key="residual-sd",
                    note=f"on {format_number(fit.dof, 4)} degrees of freedom")
-    rep.key_figure("Digits you can trust", trusted, text=f"{trusted:.1f}", key="digits", tone=tone,
-                   note="significant digits of the coefficients")
+    solved = float(getattr(h, "digits_solved", trusted))
+    rep.key_figure("Digits computed right", solved, text=f"{solved:.1f}", key="digits-computed",
+                   tone="alert" if _EPS_DIGITS - solved > current().digits_warn else ("note" if solved < 8 else "good"),
+                   note="significant digits of the coefficients for the data exactly as given")
+    rep.key_figure("Digits that survive the data's last digit", trusted, text=f"{trusted:.1f}", key="digits",
+                   tone=tone, note="sensitivity: one unit changed in the last digit of every input")
     rep.key_figure("Condition number", float(h.condition_number), digits=3, key="condition",
                    note="columns scaled to unit length", tone=tone)
     if h.set_aside:
