@@ -51,8 +51,10 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         be read twice; a one-shot iterator is read once.
     estimator : {"sample", "shrinkage", "robust"}
         ``"sample"``: unbiased sample covariance along the automatic numerical
-        path (see Notes). ``"shrinkage"``: towards a scaled identity, intensity
-        by ``shrinkage``; defined for N <= p. ``"robust"``: Minimum Covariance
+        path (see Notes). ``"shrinkage"``: the correlation shrunk towards the
+        identity (the covariance towards its own diagonal; Schafer & Strimmer
+        2005), intensity by ``shrinkage`` on standardized rows, so the units
+        of a column do not matter; defined for N <= p. ``"robust"``: Minimum Covariance
         Determinant (FastMCD) with consistency factor and one reweighting step;
         the reference rows it leaves out are in ``params["flagged_rows"]``.
     columns : sequence of str, optional
@@ -189,6 +191,7 @@ def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseli
     from ..estimate.shrinkage import (
         SHRINKAGE_METHODS,
         centred_fourth_moment,
+        column_scales,
         shrinkage_intensity,
         shrunk_factor,
     )
@@ -204,14 +207,15 @@ def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseli
     if st.n < 2:
         raise InputError("shrinkage needs at least 2 complete rows")
     check_scatter(st, src.names, dependent=False)
+    scales = column_scales(st.mat, st.n)
     norm4 = None
     passes = 1
     if rule == "ledoit-wolf":
-        norm4 = centred_fourth_moment(blocks(), st.shift, st.mean)
+        norm4 = centred_fourth_moment(blocks(), st.shift, st.mean, scales)
         passes = 2
-    delta, m = shrinkage_intensity(st.mat, st.n, rule, norm4)
-    f = shrunk_factor(st.mat, st.n, delta, m, src.names)
-    params = {"shrinkage": rule, "intensity": delta, "target": "scaled identity", "target_scale": m,
+    delta, _ = shrinkage_intensity(st.mat / scales, st.n, rule, norm4)
+    f = shrunk_factor(st.mat, st.n, delta, scales, src.names)
+    params = {"shrinkage": rule, "intensity": delta, "target": "diagonal (correlation towards identity)",
               "divisor": "n"}
     health = _common_health(f, clean, "tsqr", None, passes)
     return Baseline(mean=st.location, factor=f, n=st.n, columns=src.names, estimator="shrinkage",

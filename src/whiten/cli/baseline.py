@@ -33,8 +33,8 @@ def add_parser(sub) -> None:
     p.add_argument("--columns", metavar="A,B,...", help="sensors to use, comma-separated (default: all but "
                                                          "the index column)")
     p.add_argument("--estimator", choices=["sample", "shrinkage", "robust"], default="sample",
-                   help="sample (default): unbiased covariance; shrinkage: towards a scaled identity, for "
-                        "few rows; robust: FastMCD, leaves out gross outliers of the reference data")
+                   help="sample (default): unbiased covariance; shrinkage: correlation towards the "
+                        "identity, for few rows; robust: FastMCD, leaves out gross outliers of the reference data")
     p.add_argument("--shrinkage", choices=["ledoit-wolf", "oas"], default="ledoit-wolf",
                    help="intensity rule for --estimator shrinkage (default ledoit-wolf)")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
@@ -75,7 +75,7 @@ def health_lines(b) -> list[str]:
             why = f" (the Gram route would lose {h.gram_digits_lost:.1f} digits)"
         out.append(f"estimator: sample covariance, divisor {prm.get('divisor', 'n - 1')}; route: {route}{why}")
     elif b.estimator == "shrinkage":
-        out.append(f"estimator: shrinkage towards a scaled identity ({prm.get('shrinkage')}), intensity "
+        out.append(f"estimator: shrinkage of the correlation towards the identity ({prm.get('shrinkage')}), intensity "
                    f"{prm.get('intensity', float('nan')):.4g}")
     else:
         flagged = prm.get("flagged_labels", prm.get("flagged_rows", []))
