@@ -82,7 +82,10 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         ``(N + p + 1) / 2`` rows, the highest breakdown point).
     seed : int, optional
         ``"robust"``: seed of the random starting subsets (default a fixed
-        internal seed, so fits are reproducible).
+        internal seed, so fits are reproducible); for every baseline without
+        an exact law (shrinkage, robust, weighted), also the seed of the
+        simulated limit (:mod:`whiten.monitor.calibrated`, default
+        ``LIMIT_SEED``).
     progress : bool, optional
         Force the progress bar on or off (default: when stderr is a terminal).
 
@@ -104,6 +107,10 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         Incomplete rows were left out (how many, and the first).
     ConditioningWarning
         The covariance loses more than ``digits_warn`` digits.
+    WeakScreenWarning
+        The new-row limit at alpha = 0.001 is more than 1.5 times the
+        chi-square limit; the message gives the rows that would bring it
+        within 10%.
 
     Notes
     -----
@@ -157,7 +164,58 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     else:
         b = _fit_robust(src, clean, support_fraction, seed)
     clean.report()
-    return b
+    return _with_law(b, clean, src, seed)
+
+
+def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Baseline:
+    """Attach the simulated law of a new row's d2 where no exact law exists, and check the screen."""
+    from ..monitor.calibrated import ASYMPTOTIC_CELLS, correlation_lower, simulate_law
+
+    prm = b.params
+    settings: dict = {}
+    m = b.n
+    need = b.estimator != "sample" or bool(prm.get("weighted"))
+    if b.estimator == "shrinkage":
+        settings["shrinkage"] = prm["shrinkage"]
+    elif b.estimator == "robust":
+        m = int(prm["n_total"])
+        settings["support_fraction"] = prm["support_fraction"] if prm["support_fraction"] * m > (m + b.dim + 1) // 2 \
+            else None
+    elif need:
+        if not src.reiterable:  # the weights cannot be read again: keep the asymptotic/approximate law
+            need = False
+        else:
+            w = np.concatenate([blk.weights if blk.weights is not None else np.ones(blk.values.shape[0])
+                                for blk in clean()])
+            settings["weights"] = w[w > 0]
+            m = int(settings["weights"].size)
+    law = None
+    if need and m * b.dim <= ASYMPTOTIC_CELLS:
+        law = simulate_law(b.estimator, correlation_lower(b.factor), m, settings=settings, seed=seed)
+        if law.flagged_mean is not None:
+            prm = dict(prm, flagged_expected_clean=law.flagged_mean, flagged_expected_se=law.flagged_se)
+    out = Baseline(mean=b.mean, factor=b.factor, n=b.n, columns=b.columns, estimator=b.estimator, params=prm,
+                   health=b.health, weight_sum=b.weight_sum, limit_law=law)
+    _screen_warning(out)
+    return out
+
+
+def _screen_warning(b: Baseline) -> None:
+    """WeakScreenWarning when the default limit (alpha 0.001, new rows) is far above chi-square."""
+    from .._warn import warn
+    from ..errors import WeakScreenWarning
+    from ..monitor.limits import screen_check, t2_limit
+
+    alpha = 0.001
+    if b.limit_law is not None:
+        lim = b.limit_law.isf(alpha)
+    elif b.n > b.dim:
+        lim = float(t2_limit(alpha, b.dim, b.n, phase="new"))
+    else:  # pragma: no cover - sample fits refuse m <= p
+        return
+    chk = screen_check(lim, alpha, b.dim, b.n)
+    if chk is not None:
+        warn(WeakScreenWarning, chk["message"] + " (checked at the default alpha of whiten score)")
 
 
 def _common_health(f: Factor, clean: Cleaner, method: str, gram_digits: float | None, passes: int) -> BaselineHealth:
