@@ -15,7 +15,7 @@ examples:
   whiten baseline few_rows.csv -o loop.json --estimator shrinkage --force
   whiten baseline counts.csv -o loop.json --weight-column n_seen
 
-The model file is JSON (format whiten.baseline/2) with a SHA-256 checksum;
+The model file is JSON (format whiten.baseline/3) with a SHA-256 checksum;
 `whiten inspect MODEL.json` describes it and `whiten score` uses it. Large
 files are read in chunks with bounded memory. Rows with a missing reading are
 left out and counted (--missing error stops at the first instead).
@@ -86,6 +86,16 @@ def health_lines(b) -> list[str]:
     cond_s = "inf" if not math.isfinite(cond) else f"{cond:.3g}"
     out.append(f"condition (correlation scale): {cond_s}; about {h.digits_lost:.1f} digits lost, "
                f"~{h.digits_trusted:.0f} trusted")
+    law = getattr(b, "limit_law", None)
+    if law is not None:
+        out.append("limit of new rows: " + law.describe(0.001))
+    elif b.estimator == "sample" and not prm.get("weighted"):
+        out.append(f"limit of new rows: exact F law of the sample estimator with m = {b.n} (Tracy, Young & Mason 1992)")
+    else:
+        out.append(f"limit of new rows: asymptotic (m p = {b.n * b.dim} reference cells): the sample estimator's F law")
+    if law is not None and law.flagged_mean is not None:
+        out.append(f"clean Gaussian data of {law.m} rows would give {law.flagged_mean:.1f} +- {law.flagged_se:.1f} "
+                   f"outlier(s) at this cut (simulated; {0.025 * law.m:.1f} if the parameters were known)")
     out.append("jitter: none" if h.jitter == 0 else
                f"jitter: {h.jitter:.3g} added to the diagonal ({h.jitter_relative:.1e} of the mean variance)")
     return out

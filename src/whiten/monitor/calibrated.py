@@ -46,9 +46,9 @@ __all__ = ["SimulatedLaw", "simulate_law", "TAILS", "ASYMPTOTIC_CELLS", "ROBUST_
 
 TAILS = tuple(float(t) for t in np.geomspace(0.5, 1e-4, 25))  #: tail probabilities of the table
 ASYMPTOTIC_CELLS = 200_000  #: above m * p reference cells the sample law with m rows serves
-ROBUST_STARTS = 25  #: random starts of the simulated robust refits
+ROBUST_STARTS = 10  #: random starts of the simulated robust refits
 LIMIT_SEED = 20050419  #: default seed of the simulation (fixed: limits are reproducible)
-_DRAWS = {"sample": 200, "shrinkage": 200, "robust": 60}
+_DRAWS = {"sample": 200, "shrinkage": 200, "robust": 40}
 _FRESH_CELLS = 20_000  # fresh rows per draw times p
 
 
@@ -187,7 +187,7 @@ def simulate_law(estimator: str, corr_lower: np.ndarray, m: int, *, settings: di
     if draws is None:
         draws = _DRAWS.get(estimator, 200)
         if estimator == "robust":  # a robust refit costs ~ m p^2 per C-step: fewer draws for large m
-            draws = max(20, min(draws, 12_000 // max(m, 1)))
+            draws = max(20, min(draws, 8_000 // max(m, 1)))
     k = max(500, _FRESH_CELLS // p)
     rng = np.random.default_rng(seed)
     names = [f"x{j}" for j in range(p)]
