@@ -119,4 +119,5 @@ def read_payload(path: str | os.PathLike) -> dict:
         raise bad(f"the factor is not a valid Cholesky factor ({exc})") from None
     f = Factor(low, health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)
     return dict(mean=mean, factor=f, n=n, columns=cols, estimator=est, params=dict(payload.get("params") or {}),
-                health=health, weight_sum=float(payload.get("weight_sum", n)), created_utc=payload.get("created_utc"), limit_law=law)
+                health=health, weight_sum=float(payload.get("weight_sum", n)), created_utc=payload.get("created_utc"),
+                limit_law=law)

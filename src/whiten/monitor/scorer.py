@@ -21,9 +21,9 @@ from .._warn import warn
 from ..errors import ConditioningWarning, InputError, WeakScreenWarning
 from ..io.tables import select_columns
 from ..linalg.factor import Factor
+from .calibrated import ASYMPTOTIC_CELLS, SimulatedLaw
 from .contributions import chain_terms, score_terms_into, whitened_and_drop
 from .fdr import add_fdr
-from .calibrated import ASYMPTOTIC_CELLS, SimulatedLaw
 from .limits import check_alpha, check_phase, screen_check, t2_law, t2_limit, t2_pvalue
 
 __all__ = ["Scorer", "KINDS", "column_name"]
