@@ -16,6 +16,7 @@ from .errors import (
     NotPositiveDefiniteError,
     NumericalWarning,
     RankDeficiencyWarning,
+    WeakScreenWarning,
     WhitenError,
 )
 from .gaussian import Gaussian, RowEvaluation
@@ -67,7 +68,7 @@ __all__ = [
     "__version__",
     "get_options", "options", "set_options",
     "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
-    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning",
+    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning",
     "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
     "Gaussian", "RowEvaluation",
     # regression

@@ -74,3 +74,17 @@ class ConditioningWarning(NumericalWarning):
 
 class RankDeficiencyWarning(NumericalWarning):
     """A matrix or design is (numerically) rank deficient; the message names columns."""
+
+
+class WeakScreenWarning(UserWarning):
+    """The alarm limit is far above the known-parameter chi-square limit (too few reference rows).
+
+    A statistical weakness, not a loss of digits: the answer is computed accurately, but a screen
+    whose limit is inflated by estimation error misses faults. It is therefore a plain
+    ``UserWarning`` rather than a :class:`NumericalWarning`, so silencing rounding warnings does not
+    silence it. The message holds the limit, the chi-square limit and the reference rows that would
+    bring the limit within 10% of it.
+    """
+
+
+__all__.append("WeakScreenWarning")

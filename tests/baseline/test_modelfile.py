@@ -30,7 +30,7 @@ def test_round_trip_scores_identically(tmp_path, fitted):
     assert back.columns == b.columns and back.n == b.n and back.estimator == "sample"
     assert back.health == b.health
     doc = json.loads(f.read_text())
-    assert doc["format"] == "whiten.baseline/2"
+    assert doc["format"] == "whiten.baseline/3"
     # the checksum is SHA-256 (hashlib) of the canonical payload
     assert doc["sha256"] == hashlib.sha256(canonical(doc["payload"]).encode()).hexdigest()
     assert doc["payload"]["library_version"] == whiten.__version__
@@ -75,13 +75,13 @@ def test_wrong_format_or_version_is_rejected(tmp_path, fitted):
     b, _ = fitted
     f = b.save(tmp_path / "m.json")
     doc = json.loads(f.read_text())
-    doc["format"] = "whiten.baseline/3"
+    doc["format"] = "whiten.baseline/4"
     f.write_text(json.dumps(doc))
-    with pytest.raises(whiten.ModelFileError, match="version '3'"):
+    with pytest.raises(whiten.ModelFileError, match="version '4'"):
         whiten.load_baseline(f)
     doc["format"] = "something.else/1"
     f.write_text(json.dumps(doc))
-    with pytest.raises(whiten.ModelFileError, match="expected 'whiten.baseline/2'"):
+    with pytest.raises(whiten.ModelFileError, match="expected 'whiten.baseline/3'"):
         whiten.load_baseline(f)
     f.write_text(json.dumps([1, 2, 3]))
     with pytest.raises(whiten.ModelFileError, match="not a whiten model file"):
@@ -127,6 +127,10 @@ def test_round_trip_other_estimators(tmp_path, fitted, estimator):
         assert back.params["flagged_labels"] == [str(v) for v in b.params["flagged_labels"]]
     else:
         assert back.params["intensity"] == b.params["intensity"]
+    # the simulated law travels with the model (format 3): the same limits and p-values after reading
+    assert back.limit_law == b.limit_law and b.limit_law is not None
+    s1, s2 = b.score(x[:20]), back.score(x[:20])
+    assert np.array_equal(s1.p_value, s2.p_value) and s1.attrs["limit_basis"] == s2.attrs["limit_basis"]
 
 
 def test_infinite_health_figure_survives(tmp_path):
@@ -157,3 +161,33 @@ def test_version_1_files_still_load(tmp_path, fitted):
     old = whiten.load_baseline(f)
     assert old.health.method == b.health.method
     assert np.array_equal(old.mean, b.mean) and np.array_equal(old.factor.lower, b.factor.lower)
+
+
+def test_version_2_files_still_load_and_say_their_limit_is_approximate(tmp_path, fitted):
+    # format 2 had no limit_law: a shrinkage model read from it scores on the sample law, labelled
+    from whiten.io.modelfile import checksum
+
+    _, x = fitted
+    b = whiten.fit_baseline(x, estimator="shrinkage")
+    f = b.save(tmp_path / "m.json")
+    doc = json.loads(f.read_text())
+    doc["format"] = "whiten.baseline/2"
+    del doc["payload"]["limit_law"]
+    doc["sha256"] = checksum(doc["payload"])
+    f.write_text(json.dumps(doc))
+    old = whiten.load_baseline(f)
+    assert old.limit_law is None and np.array_equal(old.factor.lower, b.factor.lower)
+    assert "approximate here" in old.score(x[:3]).attrs["limit_basis"]
+
+
+def test_damaged_limit_law_is_named(tmp_path, fitted):
+    from whiten.io.modelfile import checksum
+
+    _, x = fitted
+    f = whiten.fit_baseline(x, estimator="shrinkage").save(tmp_path / "m.json")
+    doc = json.loads(f.read_text())
+    doc["payload"]["limit_law"]["quantiles"][3] = -1.0
+    doc["sha256"] = checksum(doc["payload"])
+    f.write_text(json.dumps(doc))
+    with pytest.raises(whiten.ModelFileError, match="limit_law: the quantile table"):
+        whiten.load_baseline(f)

@@ -141,17 +141,18 @@ def test_baseline_score_hook_and_round_trip(files):
     assert np.array_equal(again["alarm"], direct["alarm"])
 
 
-def test_limit_basis_says_when_the_exact_law_is_approximate():
-    # the F/Beta laws (Tracy, Young & Mason 1992) assume the unweighted sample estimate
+def test_limit_basis_says_which_law_each_limit_uses():
+    # the F/Beta laws (Tracy, Young & Mason 1992) assume the unweighted sample estimate; shrinkage and
+    # weighted baselines carry a simulated law (whiten.monitor.calibrated)
     rng = np.random.default_rng(8)
     x = rng.standard_normal((120, 3))
     cols = ["a", "b", "c"]
     plain = score(whiten.fit_baseline(x, columns=cols), x[:2]).attrs["limit_basis"]
     assert "F(3, 117)" in plain and "approximate" not in plain
     shr = score(whiten.fit_baseline(x, columns=cols, estimator="shrinkage"), x[:2]).attrs["limit_basis"]
-    assert "approximate here" in shr and "'shrinkage'" in shr
+    assert "simulated by parametric bootstrap" in shr and "shrinkage, ledoit-wolf, m=120" in shr
     w = score(whiten.fit_baseline(x, columns=cols, weights=rng.uniform(0.5, 1.5, 120)), x[:2])
-    assert "row weights" in w.attrs["limit_basis"]
+    assert "weighted sample covariance" in w.attrs["limit_basis"] and w.attrs["limit_law"] == "simulated"
     known = score(whiten.fit_baseline(x, columns=cols, estimator="shrinkage"), x[:2], phase="known")
     assert "approximate" not in known.attrs["limit_basis"]
 

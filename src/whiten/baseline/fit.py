@@ -51,8 +51,10 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         be read twice; a one-shot iterator is read once.
     estimator : {"sample", "shrinkage", "robust"}
         ``"sample"``: unbiased sample covariance along the automatic numerical
-        path (see Notes). ``"shrinkage"``: towards a scaled identity, intensity
-        by ``shrinkage``; defined for N <= p. ``"robust"``: Minimum Covariance
+        path (see Notes). ``"shrinkage"``: the correlation shrunk towards the
+        identity (the covariance towards its own diagonal; Schafer & Strimmer
+        2005), intensity by ``shrinkage`` on standardized rows, so the units
+        of a column do not matter; defined for N <= p. ``"robust"``: Minimum Covariance
         Determinant (FastMCD) with consistency factor and one reweighting step;
         the reference rows it leaves out are in ``params["flagged_rows"]``.
     columns : sequence of str, optional
@@ -80,7 +82,10 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         ``(N + p + 1) / 2`` rows, the highest breakdown point).
     seed : int, optional
         ``"robust"``: seed of the random starting subsets (default a fixed
-        internal seed, so fits are reproducible).
+        internal seed, so fits are reproducible); for every baseline without
+        an exact law (shrinkage, robust, weighted), also the seed of the
+        simulated limit (:mod:`whiten.monitor.calibrated`, default
+        ``LIMIT_SEED``).
     progress : bool, optional
         Force the progress bar on or off (default: when stderr is a terminal).
 
@@ -102,6 +107,10 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         Incomplete rows were left out (how many, and the first).
     ConditioningWarning
         The covariance loses more than ``digits_warn`` digits.
+    WeakScreenWarning
+        The new-row limit at alpha = 0.001 is more than 1.5 times the
+        chi-square limit; the message gives the rows that would bring it
+        within 10%.
 
     Notes
     -----
@@ -155,7 +164,58 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     else:
         b = _fit_robust(src, clean, support_fraction, seed)
     clean.report()
-    return b
+    return _with_law(b, clean, src, seed)
+
+
+def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Baseline:
+    """Attach the simulated law of a new row's d2 where no exact law exists, and check the screen."""
+    from ..monitor.calibrated import ASYMPTOTIC_CELLS, correlation_lower, simulate_law
+
+    prm = b.params
+    settings: dict = {}
+    m = b.n
+    need = b.estimator != "sample" or bool(prm.get("weighted"))
+    if b.estimator == "shrinkage":
+        settings["shrinkage"] = prm["shrinkage"]
+    elif b.estimator == "robust":
+        m = int(prm["n_total"])
+        settings["support_fraction"] = prm["support_fraction"] if prm["support_fraction"] * m > (m + b.dim + 1) // 2 \
+            else None
+    elif need:
+        if not src.reiterable:  # the weights cannot be read again: keep the asymptotic/approximate law
+            need = False
+        else:
+            w = np.concatenate([blk.weights if blk.weights is not None else np.ones(blk.values.shape[0])
+                                for blk in clean()])
+            settings["weights"] = w[w > 0]
+            m = int(settings["weights"].size)
+    law = None
+    if need and m * b.dim <= ASYMPTOTIC_CELLS:
+        law = simulate_law(b.estimator, correlation_lower(b.factor), m, settings=settings, seed=seed)
+        if law.flagged_mean is not None:
+            prm = dict(prm, flagged_expected_clean=law.flagged_mean, flagged_expected_se=law.flagged_se)
+    out = Baseline(mean=b.mean, factor=b.factor, n=b.n, columns=b.columns, estimator=b.estimator, params=prm,
+                   health=b.health, weight_sum=b.weight_sum, limit_law=law)
+    _screen_warning(out)
+    return out
+
+
+def _screen_warning(b: Baseline) -> None:
+    """WeakScreenWarning when the default limit (alpha 0.001, new rows) is far above chi-square."""
+    from .._warn import warn
+    from ..errors import WeakScreenWarning
+    from ..monitor.limits import screen_check, t2_limit
+
+    alpha = 0.001
+    if b.limit_law is not None:
+        lim = b.limit_law.isf(alpha)
+    elif b.n > b.dim:
+        lim = float(t2_limit(alpha, b.dim, b.n, phase="new"))
+    else:  # pragma: no cover - sample fits refuse m <= p
+        return
+    chk = screen_check(lim, alpha, b.dim, b.n)
+    if chk is not None:
+        warn(WeakScreenWarning, chk["message"] + " (checked at the default alpha of whiten score)")
 
 
 def _common_health(f: Factor, clean: Cleaner, method: str, gram_digits: float | None, passes: int) -> BaselineHealth:
@@ -189,6 +249,7 @@ def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseli
     from ..estimate.shrinkage import (
         SHRINKAGE_METHODS,
         centred_fourth_moment,
+        column_scales,
         shrinkage_intensity,
         shrunk_factor,
     )
@@ -204,14 +265,15 @@ def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseli
     if st.n < 2:
         raise InputError("shrinkage needs at least 2 complete rows")
     check_scatter(st, src.names, dependent=False)
+    scales = column_scales(st.mat, st.n)
     norm4 = None
     passes = 1
     if rule == "ledoit-wolf":
-        norm4 = centred_fourth_moment(blocks(), st.shift, st.mean)
+        norm4 = centred_fourth_moment(blocks(), st.shift, st.mean, scales)
         passes = 2
-    delta, m = shrinkage_intensity(st.mat, st.n, rule, norm4)
-    f = shrunk_factor(st.mat, st.n, delta, m, src.names)
-    params = {"shrinkage": rule, "intensity": delta, "target": "scaled identity", "target_scale": m,
+    delta, _ = shrinkage_intensity(st.mat / scales, st.n, rule, norm4)
+    f = shrunk_factor(st.mat, st.n, delta, scales, src.names)
+    params = {"shrinkage": rule, "intensity": delta, "target": "diagonal (correlation towards identity)",
               "divisor": "n"}
     health = _common_health(f, clean, "tsqr", None, passes)
     return Baseline(mean=st.location, factor=f, n=st.n, columns=src.names, estimator="shrinkage",

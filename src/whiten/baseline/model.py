@@ -17,6 +17,7 @@ from .. import _validate
 from ..errors import InputError
 from ..gaussian import Gaussian
 from ..linalg.factor import Factor
+from ..monitor.calibrated import SimulatedLaw
 from ..monitor.score import score
 from .health import BaselineHealth, health_from_factor
 from .modelfile import payload_of, read_payload, save_payload
@@ -52,11 +53,13 @@ class Baseline:
     health : BaselineHealth
     gaussian : Gaussian
         ``N(mean, cov)`` built on ``factor`` (no refactorization).
+    limit_law : SimulatedLaw or None
+        The simulated law of a new row's d2 that ``score(phase="new")`` uses.
     """
 
     def __init__(self, *, mean: np.ndarray, factor: Factor, n: int, columns: Sequence[str], estimator: str,
                  params: dict, health: BaselineHealth, weight_sum: float | None = None,
-                 created_utc: str | None = None):
+                 created_utc: str | None = None, limit_law: SimulatedLaw | None = None):
         mean = np.array(mean, dtype=np.float64, copy=True)
         mean.setflags(write=False)
         cols = [str(c) for c in columns]
@@ -75,6 +78,7 @@ class Baseline:
         self._health = health
         self._created = created_utc
         self._gaussian: Gaussian | None = None
+        self._law = limit_law
 
     # -- attributes
     @property
@@ -116,6 +120,13 @@ class Baseline:
     @property
     def health(self) -> BaselineHealth:
         return self._health
+
+    @property
+    def limit_law(self) -> SimulatedLaw | None:
+        """The simulated law of a new row's d2 (:mod:`whiten.monitor.calibrated`), or None where the
+        exact law (unweighted sample estimate) or the asymptotic one (m p above
+        ``ASYMPTOTIC_CELLS``) serves."""
+        return self._law
 
     @property
     def created_utc(self) -> str | None:
@@ -226,7 +237,7 @@ class Baseline:
 
     # -- files (whiten.baseline.modelfile)
     def save(self, path: str | os.PathLike, *, force: bool = False):
-        """Write the baseline to a JSON model file (format ``whiten.baseline/2``), atomically.
+        """Write the baseline to a JSON model file (format ``whiten.baseline/3``), atomically.
 
         Raises
         ------

@@ -1,11 +1,14 @@
-"""The baseline model file: format ``whiten.baseline/2`` (JSON payload + SHA-256, :mod:`whiten.io.modelfile`).
+"""The baseline model file: format ``whiten.baseline/3`` (JSON payload + SHA-256, :mod:`whiten.io.modelfile`).
 
 Payload fields: ``columns``, ``n``, ``weight_sum``, ``mean``, ``factor_lower``
 (row ``i`` holds the ``i + 1`` entries of the lower factor's row), ``estimator``,
 ``params``, ``health`` (the :class:`BaselineHealth` fields), ``created_utc``,
 ``library_version``. Numbers follow the project's JSON rule (NaN as null,
 infinities as ``"inf"``/``"-inf"``). Version 1 files (whose health record
-named the numerical route ``path``) are still read.
+named the numerical route ``path``) and version 2 files (no ``limit_law``)
+are still read. Version 3 adds ``limit_law``: the simulated law of a new
+row's d2 (:class:`whiten.monitor.calibrated.SimulatedLaw` as a dict) or null;
+a version-2 reader would ignore it and use the wrong limit, hence the bump.
 """
 
 from __future__ import annotations
@@ -22,12 +25,13 @@ from ..errors import InputError, ModelFileError, NotPositiveDefiniteError
 from ..io.modelfile import jsonable, read_model, utc_now, write_model
 from ..linalg.factor import Factor
 from ..linalg.health import health_of
+from ..monitor.calibrated import SimulatedLaw
 from .health import BaselineHealth
 
 __all__ = ["MODEL_FORMAT", "ESTIMATORS", "payload_of", "save_payload", "read_payload"]
 
-MODEL_FORMAT = "whiten.baseline/2"
-_OLDER = ("whiten.baseline/1",)
+MODEL_FORMAT = "whiten.baseline/3"
+_OLDER = ("whiten.baseline/1", "whiten.baseline/2")
 #: the estimators a model file may name
 ESTIMATORS = ("sample", "shrinkage", "robust")
 _FLOAT_FIELDS = ("rcond", "rcond_scaled", "digits_lost", "jitter", "jitter_relative")
@@ -47,6 +51,7 @@ def payload_of(baseline: Any) -> dict:
         "health": dataclasses.asdict(baseline.health),
         "created_utc": baseline.created_utc,
         "library_version": __version__,
+        "limit_law": None if getattr(baseline, "limit_law", None) is None else baseline.limit_law.to_dict(),
     })
 
 
@@ -96,8 +101,12 @@ def read_payload(path: str | os.PathLike) -> dict:
         health = BaselineHealth(**hd)
         n = int(payload["n"])
         est = str(payload["estimator"])
+        law = payload.get("limit_law")
+        law = None if law is None else SimulatedLaw.from_dict(law)
     except ModelFileError:
         raise
+    except InputError as exc:
+        raise bad(str(exc)) from None
     except (KeyError, TypeError, ValueError) as exc:
         raise bad(f"payload is incomplete or malformed ({type(exc).__name__}: {exc})") from None
     if est not in ESTIMATORS:
@@ -110,4 +119,5 @@ def read_payload(path: str | os.PathLike) -> dict:
         raise bad(f"the factor is not a valid Cholesky factor ({exc})") from None
     f = Factor(low, health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)
     return dict(mean=mean, factor=f, n=n, columns=cols, estimator=est, params=dict(payload.get("params") or {}),
-                health=health, weight_sum=float(payload.get("weight_sum", n)), created_utc=payload.get("created_utc"))
+                health=health, weight_sum=float(payload.get("weight_sum", n)), created_utc=payload.get("created_utc"),
+                limit_law=law)

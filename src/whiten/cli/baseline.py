@@ -15,7 +15,7 @@ examples:
   whiten baseline few_rows.csv -o loop.json --estimator shrinkage --force
   whiten baseline counts.csv -o loop.json --weight-column n_seen
 
-The model file is JSON (format whiten.baseline/2) with a SHA-256 checksum;
+The model file is JSON (format whiten.baseline/3) with a SHA-256 checksum;
 `whiten inspect MODEL.json` describes it and `whiten score` uses it. Large
 files are read in chunks with bounded memory. Rows with a missing reading are
 left out and counted (--missing error stops at the first instead).
@@ -33,8 +33,8 @@ def add_parser(sub) -> None:
     p.add_argument("--columns", metavar="A,B,...", help="sensors to use, comma-separated (default: all but "
                                                          "the index column)")
     p.add_argument("--estimator", choices=["sample", "shrinkage", "robust"], default="sample",
-                   help="sample (default): unbiased covariance; shrinkage: towards a scaled identity, for "
-                        "few rows; robust: FastMCD, leaves out gross outliers of the reference data")
+                   help="sample (default): unbiased covariance; shrinkage: correlation towards the "
+                        "identity, for few rows; robust: FastMCD, leaves out gross outliers of the reference data")
     p.add_argument("--shrinkage", choices=["ledoit-wolf", "oas"], default="ledoit-wolf",
                    help="intensity rule for --estimator shrinkage (default ledoit-wolf)")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
@@ -75,7 +75,7 @@ def health_lines(b) -> list[str]:
             why = f" (the Gram route would lose {h.gram_digits_lost:.1f} digits)"
         out.append(f"estimator: sample covariance, divisor {prm.get('divisor', 'n - 1')}; route: {route}{why}")
     elif b.estimator == "shrinkage":
-        out.append(f"estimator: shrinkage towards a scaled identity ({prm.get('shrinkage')}), intensity "
+        out.append(f"estimator: shrinkage of the correlation towards the identity ({prm.get('shrinkage')}), intensity "
                    f"{prm.get('intensity', float('nan')):.4g}")
     else:
         flagged = prm.get("flagged_labels", prm.get("flagged_rows", []))
@@ -86,6 +86,16 @@ def health_lines(b) -> list[str]:
     cond_s = "inf" if not math.isfinite(cond) else f"{cond:.3g}"
     out.append(f"condition (correlation scale): {cond_s}; about {h.digits_lost:.1f} digits lost, "
                f"~{h.digits_trusted:.0f} trusted")
+    law = getattr(b, "limit_law", None)
+    if law is not None:
+        out.append("limit of new rows: " + law.describe(0.001))
+    elif b.estimator == "sample" and not prm.get("weighted"):
+        out.append(f"limit of new rows: exact F law of the sample estimator with m = {b.n} (Tracy, Young & Mason 1992)")
+    else:
+        out.append(f"limit of new rows: asymptotic (m p = {b.n * b.dim} reference cells): the sample estimator's F law")
+    if law is not None and law.flagged_mean is not None:
+        out.append(f"clean Gaussian data of {law.m} rows would give {law.flagged_mean:.1f} +- {law.flagged_se:.1f} "
+                   f"outlier(s) at this cut (simulated; {0.025 * law.m:.1f} if the parameters were known)")
     out.append("jitter: none" if h.jitter == 0 else
                f"jitter: {h.jitter:.3g} added to the diagonal ({h.jitter_relative:.1e} of the mean variance)")
     return out

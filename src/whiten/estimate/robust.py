@@ -39,6 +39,7 @@ from scipy import stats
 from ..errors import ConditioningWarning, InputError, NotPositiveDefiniteError
 from ..linalg.cholesky import cholesky
 from ..linalg.factor import Factor
+from ..linalg.health import health_of
 from .sample import factor_from_r
 from .streaming import block_state
 
@@ -169,9 +170,17 @@ def fast_mcd(x: np.ndarray, names: Sequence[str], *, support_fraction: float | N
         h = max(h_min, min(n, int(math.ceil(float(support_fraction) * n))))
     seed = MCD_SEED if seed is None else int(seed)
     rng = np.random.default_rng(seed)
-    # work near the data (exact shift by a coordinate-wise median) so offsets cost no digits
+    # work on standardized data: shift by the coordinate-wise median and divide by the MAD (the
+    # standard deviation where the MAD is 0). Every step below is affine equivariant and the random
+    # subsets are drawn by position, so units enter only through these two exact-to-rounding maps
     shift = np.median(x, axis=0)
     y = x - shift
+    unit = np.median(np.abs(y), axis=0)
+    flat = ~(unit > 0)
+    if flat.any():
+        unit[flat] = y[:, flat].std(axis=0)
+    unit[~(unit > 0)] = 1.0
+    y = y / unit
 
     if h == n:
         mu, f = _subset_fit(y)
@@ -211,7 +220,7 @@ def fast_mcd(x: np.ndarray, names: Sequence[str], *, support_fraction: float | N
     _, mu_raw, f_raw_h, subset, steps = best
     c_raw = consistency_factor(h / n, p)
     low_raw = f_raw_h.lower * math.sqrt(c_raw)
-    f_raw = Factor(low_raw, f_raw_h.health, list(names))
+    f_raw = Factor(low_raw, f_raw_h.health, list(names))  # of the standardized data
 
     cutoff = float(stats.chi2.ppf(_REWEIGHT_Q, p))
     d2 = f_raw.quad(y, shift=mu_raw)
@@ -222,11 +231,15 @@ def fast_mcd(x: np.ndarray, names: Sequence[str], *, support_fraction: float | N
         raise InputError(f"robust: only {n_kept} rows survive the reweighting; too few for {p} columns")
     st = block_state(y[kept], None, np.zeros(p), "qr")
     c_rw = consistency_factor(_REWEIGHT_Q, p)
-    f = factor_from_r(st.mat, math.sqrt(c_rw / (n_kept - 1.0)), list(names), method="mcd")
+    fs = factor_from_r(st.mat, math.sqrt(c_rw / (n_kept - 1.0)), list(names), method="mcd")
+    low = unit[:, None] * fs.lower  # back to the data's units
+    f = Factor(low, health_of(low, 0.0, 0.0, "mcd"), list(names))
+    low_raw = unit[:, None] * f_raw.lower
+    f_raw = Factor(low_raw, health_of(low_raw, 0.0, 0.0, "mcd"), list(names))
     params = {
         "h": int(h), "support_fraction": h / n, "seed": seed, "n_starts": int(n_starts),
         "start_rows": int(pool_n), "raw_consistency": c_raw, "reweight_consistency": c_rw,
         "reweight_quantile": _REWEIGHT_Q, "cutoff_d2": cutoff, "raw_logdet": f_raw.logdet(),
-        "raw_mean": (shift + mu_raw).tolist(), "csteps_final": int(steps), "n_total": int(n),
+        "raw_mean": (shift + unit * mu_raw).tolist(), "csteps_final": int(steps), "n_total": int(n),
     }
-    return MCDResult(shift + st.mean, f, kept, shift + mu_raw, f_raw, params)
+    return MCDResult(shift + unit * st.mean, f, kept, shift + unit * mu_raw, f_raw, params)

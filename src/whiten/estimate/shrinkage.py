@@ -1,7 +1,16 @@
-"""Shrinkage of the sample covariance towards a scaled identity.
+"""Shrinkage of the sample correlation towards the identity (units never matter).
 
-Two published choices of the intensity, both from the maximum-likelihood
-sample covariance ``S = X_c^T X_c / n`` of the centred rows:
+The estimate is ``D ((1 - delta) C + delta I) D`` where ``S = X_c^T X_c / n``
+is the maximum-likelihood covariance of the centred rows, ``D = diag(S)^(1/2)``
+and ``C = D^-1 S D^-1`` the sample correlation: the covariance is shrunk towards
+its own diagonal, the target "D" of Schafer & Strimmer (2005), "A shrinkage
+approach to large-scale covariance matrix estimation", Stat. Appl. Genet. Mol.
+Biol. 4(1), art. 32. Rescaling or shifting a column moves ``D`` and leaves
+``C`` and the intensity unchanged, so distances do not depend on the units.
+
+The intensity ``delta`` is given by one of two published rules, applied to the
+standardized rows ``z_i = D^-1 (x_i - mean)`` (whose covariance is ``C``, with
+``tr(C) / p = 1``):
 
 * Ledoit & Wolf (2004), "A well-conditioned estimator for large-dimensional
   covariance matrices", J. Multivariate Analysis 88, 365-411: with the
@@ -14,9 +23,11 @@ sample covariance ``S = X_c^T X_c / n`` of the centred rows:
   ((n + 1 - 2/p) (tr(S^2) - tr(S)^2 / p)), 1)``; the estimate is
   ``(1 - rho) S + rho m I``.
 
-The factor of the estimate comes from a QR of the stacked
-``[sqrt((1 - delta) / n) R; sqrt(delta m) I]`` (``R^T R`` is the scatter
-matrix), so no Gram matrix of the data is factored and ``n < p`` is fine.
+The factor of the estimate is ``D Q`` where ``Q^T`` is the R of a QR of the
+stacked ``[sqrt((1 - delta) / n) R D^-1; sqrt(delta) I]`` (``R^T R`` is the
+scatter matrix, so ``R D^-1`` is the factor of the standardized scatter): no
+Gram matrix of the data is factored, no inverse is formed (``D^-1`` is a
+division by the column norms of ``R``) and ``n < p`` is fine.
 """
 
 from __future__ import annotations
@@ -28,10 +39,12 @@ import numpy as np
 
 from ..errors import InputError
 from ..linalg.factor import Factor
+from ..linalg.health import health_of
 from .sample import factor_from_r
 from .streaming import Block, _upper_r
 
-__all__ = ["SHRINKAGE_METHODS", "centred_fourth_moment", "shrinkage_intensity", "shrunk_factor"]
+__all__ = ["SHRINKAGE_METHODS", "centred_fourth_moment", "column_scales", "shrinkage_intensity", "shrunk_factor",
+           "shrunk_from_rows"]
 
 SHRINKAGE_METHODS = ("ledoit-wolf", "oas")
 
@@ -78,26 +91,51 @@ def shrinkage_intensity(r: np.ndarray, n: int, method: str, sum_norm4: float | N
     return min(num / den, 1.0), m
 
 
-def shrunk_factor(r: np.ndarray, n: int, intensity: float, m: float, names: Sequence[str]) -> Factor:
-    """Lower factor of ``(1 - delta) R^T R / n + delta m I`` by one QR of a stacked matrix."""
+def column_scales(r: np.ndarray, n: int) -> np.ndarray:
+    """``D``: the ML standard deviations ``sqrt(diag(R^T R) / n)`` (column norms of R)."""
+    return np.sqrt(np.einsum("ij,ij->j", r, r) / n)
+
+
+def shrunk_factor(r: np.ndarray, n: int, intensity: float, scales: np.ndarray, names: Sequence[str]) -> Factor:
+    """Lower factor of ``D ((1 - delta) C + delta I) D`` (``C`` from ``R / D``) by one QR of a stacked matrix."""
     p = r.shape[1]
-    if not m > 0:
-        raise InputError("every column is constant; nothing to estimate")
-    # with n <= p the estimate's smallest eigenvalue is intensity * m: below ~1e-12 of the
-    # target scale it is singular to working precision (rounding leaves ~1e-16 in place of 0)
+    if not np.all(scales > 0):
+        raise InputError("a column is constant; nothing to estimate")
+    # with n <= p the correlation estimate's smallest eigenvalue is the intensity: below ~1e-12
+    # it is singular to working precision (rounding leaves ~1e-16 in place of 0)
     if intensity <= 1e-12 and n <= p:
         raise InputError(
             f"the shrinkage intensity is 0 (to rounding, {intensity:.1e}) for these {n} rows "
             f"(their spread about the mean is exactly "
             f"explained by the sample covariance, as happens with 2 rows), so the estimate is the singular "
             f"sample covariance of n <= p = {p}. Use shrinkage='oas' or more rows")
-    stacked = np.vstack([math.sqrt((1.0 - intensity) / n) * r, math.sqrt(intensity * m) * np.eye(p)])
+    rs = r / scales
+    stacked = np.vstack([math.sqrt((1.0 - intensity) / n) * rs, math.sqrt(intensity) * np.eye(p)])
     rr = _upper_r(np.asfortranarray(stacked))
-    return factor_from_r(rr, 1.0, names, method="shrinkage")
+    fc = factor_from_r(rr, 1.0, names, method="shrinkage")
+    lower = scales[:, None] * fc.lower
+    return Factor(lower, health_of(lower, 0.0, 0.0, "shrinkage"), names)
 
 
-def centred_fourth_moment(blocks: Iterable[Block], shift: np.ndarray, mean: np.ndarray) -> float:
-    """``sum_i ||x_i - shift - mean||^4`` over the rows of the blocks (Ledoit-Wolf's second pass).
+def shrunk_from_rows(x: np.ndarray, rule: str, names: Sequence[str]) -> tuple[np.ndarray, Factor, float]:
+    """Mean, factor and intensity of the shrinkage estimate of in-memory rows (the same steps as
+    :func:`whiten.fit_baseline`; used by the simulated limits)."""
+    n = x.shape[0]
+    mean = x.mean(axis=0)
+    xc = x - mean
+    r = _upper_r(np.asfortranarray(xc))
+    sc = column_scales(r, n)
+    norm4 = None
+    if rule == "ledoit-wolf":
+        q = np.einsum("ij,ij->i", xc / sc, xc / sc)
+        norm4 = float(q @ q)
+    delta, _ = shrinkage_intensity(r / sc, n, rule, norm4)
+    return mean, shrunk_factor(r, n, delta, sc, names), delta
+
+
+def centred_fourth_moment(blocks: Iterable[Block], shift: np.ndarray, mean: np.ndarray,
+                          scales: np.ndarray | None = None) -> float:
+    """``sum_i ||(x_i - shift - mean) / scales||^4`` over the rows of the blocks (Ledoit-Wolf's second pass).
 
     One pass, one block in memory at a time; ``shift + mean`` is the sample mean
     (the accumulator's pilot shift and the mean of the shifted rows, subtracted
@@ -107,6 +145,8 @@ def centred_fourth_moment(blocks: Iterable[Block], shift: np.ndarray, mean: np.n
     for blk in blocks:
         if blk.values.shape[0]:
             z = blk.values - shift - mean
+            if scales is not None:
+                z /= scales
             q = np.einsum("ij,ij->i", z, z)
             total += float(q @ q)
     return total

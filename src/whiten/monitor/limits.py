@@ -32,9 +32,15 @@ of those k sensors, which is estimated from the same m rows, so the same laws
 hold with p replaced by k (per row).
 
 The laws assume the baseline is the plain sample estimate (``estimator
-"sample"``) of m independent rows from a Gaussian. For shrinkage or robust
-baselines they are approximations; :func:`whiten.monitor.score` says so in
-``DataFrame.attrs["limit_basis"]``.
+"sample"``) of m independent rows from a Gaussian. For shrinkage, robust and
+weighted baselines the law of a new row is simulated
+(:mod:`whiten.monitor.calibrated`); :func:`whiten.monitor.score` states the
+law it used in ``DataFrame.attrs["limit_basis"]``.
+
+A screen is *weak* when its limit is more than :data:`WEAK_RATIO` times the
+known-parameter chi-square limit: estimation error, not the process, then
+sets the limit. :func:`screen_check` says so, with the reference rows the
+exact law needs to bring the limit within 10% (:func:`rows_within`).
 """
 
 from __future__ import annotations
@@ -46,9 +52,10 @@ from scipy import special, stats
 
 from ..errors import InputError
 
-__all__ = ["PHASES", "check_phase", "t2_pvalue", "t2_limit", "t2_law"]
+__all__ = ["PHASES", "WEAK_RATIO", "check_phase", "t2_pvalue", "t2_limit", "t2_law", "rows_within", "screen_check"]
 
 PHASES = ("new", "reference", "known")
+WEAK_RATIO = 1.5  #: a limit above this multiple of the chi-square limit makes a weak screen
 
 
 def check_phase(phase: str, p: int, m: int | None) -> None:
@@ -216,3 +223,48 @@ def check_alpha(alpha: Any, name: str = "alpha") -> float:
     if not (0.0 < a < 1.0):
         raise InputError(f"{name}: expected a probability strictly between 0 and 1, got {alpha!r}")
     return a
+
+
+def rows_within(alpha: float, p: int, within: float = 0.10) -> int:
+    """Fewest reference rows m whose exact new-row limit (sample estimator) is within ``within`` of the
+    chi-square limit: ``t2_limit(alpha, p, m) <= (1 + within) chi2.isf(alpha, p)``.
+
+    The limit decreases with m towards the chi-square limit, so a doubling search and a bisection
+    on whole m find the smallest such m.
+
+    Examples
+    --------
+    >>> m = rows_within(0.001, 8)
+    >>> bool(t2_limit(0.001, 8, m) <= 1.1 * stats.chi2.isf(0.001, 8) < t2_limit(0.001, 8, m - 1))
+    True
+    """
+    alpha = check_alpha(alpha)
+    target = (1.0 + within) * float(stats.chi2.isf(alpha, p))
+
+    def ok(m: int) -> bool:
+        return float(t2_limit(alpha, p, m, phase="new")) <= target
+
+    lo, hi = p, 2 * p + 2  # ok(lo) is False: no law at m = p
+    while not ok(hi):
+        lo, hi = hi, 2 * hi
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if ok(mid):
+            hi = mid
+        else:
+            lo = mid
+    return hi
+
+
+def screen_check(limit: float, alpha: float, p: int, m: int | None) -> dict | None:
+    """None for a sound screen; else the facts of a weak one (limit, chi-square limit, ratio, rows needed)."""
+    chi = float(stats.chi2.isf(alpha, p))
+    if not limit > WEAK_RATIO * chi:
+        return None
+    need = rows_within(alpha, p)
+    text = (f"weak screen: the alarm limit {limit:.4g} at alpha={alpha:g} is {limit / chi:.3g} times the "
+            f"known-parameter chi-square({p}) limit {chi:.4g}, so estimation error, not the process, sets it and "
+            f"faults can go unseen; about {need} reference rows (the sample estimator's exact law; now "
+            f"{m}) would bring the limit within 10% of {chi:.4g}")
+    return {"alpha": alpha, "limit": float(limit), "chi2_limit": chi, "ratio": float(limit / chi),
+            "rows_needed": int(need), "reference_rows": m, "message": text}

@@ -17,12 +17,14 @@ import numpy as np
 
 from .._settings import current
 from .._validate import as_float_array, as_rows
-from ..errors import ConditioningWarning, InputError
+from .._warn import warn
+from ..errors import ConditioningWarning, InputError, WeakScreenWarning
 from ..io.tables import select_columns
 from ..linalg.factor import Factor
+from .calibrated import ASYMPTOTIC_CELLS, SimulatedLaw
 from .contributions import chain_terms, score_terms_into, whitened_and_drop
 from .fdr import add_fdr
-from .limits import check_alpha, check_phase, t2_law, t2_limit, t2_pvalue
+from .limits import check_alpha, check_phase, screen_check, t2_law, t2_limit, t2_pvalue
 
 __all__ = ["Scorer", "KINDS", "column_name"]
 
@@ -97,7 +99,11 @@ class Scorer:
         if phase in ("new", "reference") and self.m is None:
             raise InputError(f"phase={phase!r} needs the number of reference rows; this model has none "
                              "(a Gaussian with known parameters): use phase='known'")
-        check_phase(phase, self.p, self.m)
+        law = getattr(baseline, "limit_law", None)
+        self.law: SimulatedLaw | None = law if phase == "new" and isinstance(law, SimulatedLaw) \
+            and law.p == self.p else None
+        if self.law is None:
+            check_phase(phase, self.p, self.m)
         self.phase = phase
         if order is None:
             self.order = list(self.columns)
@@ -119,18 +125,53 @@ class Scorer:
         ws = getattr(baseline, "weight_sum", None)
         self.weight_sum = None if ws is None else float(ws)
         self.limit_basis = self._limit_basis()
+        self.full_limit = self.law.isf(self.alpha) if self.law is not None else \
+            float(t2_limit(self.alpha, self.p, self.m, phase=phase))
+        self.weak = screen_check(self.full_limit, self.alpha, self.p, self.m)
+        if self.weak is not None:
+            warn(WeakScreenWarning, self.weak["message"])
 
     def _limit_basis(self) -> str:
+        if self.law is not None:
+            part = ""
+            if self.m is not None and self.m > self.p:
+                part = "; rows with missing sensors: " + t2_law("new", self.p, self.m).replace(
+                    f"{self.p}", "k") + " (the sample estimator's law with k observed, approximate here)"
+            return self.law.describe(self.alpha) + part
         law = t2_law(self.phase, self.p, self.m)
         est = self.estimator
-        if self.phase != "known" and est not in (None, "sample"):
-            return (f"{law}; approximate here: the law holds for the plain sample estimate, "
-                    f"this baseline uses estimator {est!r}")
-        if self.phase != "known" and self.weight_sum is not None and self.m is not None \
-                and abs(self.weight_sum - self.m) > 1e-9 * self.m:
-            return (f"{law}; approximate here: the law holds for unweighted rows, this baseline "
-                    f"was fitted with row weights (sum {self.weight_sum:.6g} over {self.m} rows)")
+        weighted = self.weight_sum is not None and self.m is not None \
+            and abs(self.weight_sum - self.m) > 1e-9 * self.m
+        if self.phase == "new" and (est not in (None, "sample") or weighted) and \
+                self.m is not None and self.m * self.p <= ASYMPTOTIC_CELLS:
+            return (f"{law}; approximate here: this {est} baseline carries no simulated law (a model file "
+                    "older than whiten.baseline/3?); refit it for a limit that holds")
+        if self.phase == "new" and (est not in (None, "sample") or weighted):
+            return (f"{law}; asymptotic here: with m p = {self.m * self.p} > {ASYMPTOTIC_CELLS} reference cells "
+                    f"the extra estimation error of this {'weighted ' if weighted else ''}{est} baseline is "
+                    "O(p/m), so the sample estimator's exact law serves")
+        if self.phase == "reference" and (est not in (None, "sample") or weighted):
+            return (f"{law}; approximate here: the law holds for the plain unweighted sample estimate, "
+                    f"this baseline uses estimator {est!r}{' with row weights' if weighted else ''}")
         return law
+
+    def _law_values(self, d2: np.ndarray, nobs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """p-values and limits per row: the simulated law for complete rows when there is one."""
+        if self.law is None:
+            limit = t2_limit(self.alpha, nobs, self.m, phase=self.phase)
+            assert isinstance(limit, np.ndarray)  # nobs is an array, so t2_limit gives one limit per row
+            return t2_pvalue(d2, nobs, self.m, phase=self.phase), limit
+        full = nobs == self.p
+        pval = np.full(d2.shape, np.nan)
+        limit = np.full(d2.shape, np.nan)
+        pval[full] = self.law.sf(d2[full])
+        limit[full] = self.full_limit
+        part = ~full & (nobs > 0)
+        if part.any():
+            ph = "new" if self.m is not None and self.m > int(nobs[part].max()) else "known"
+            pval[part] = t2_pvalue(d2[part], nobs[part], self.m, phase=ph)
+            limit[part] = t2_limit(self.alpha, nobs[part], self.m, phase=ph)
+        return pval, limit
 
     def _sub(self, obs: np.ndarray) -> _SubModel:
         key = obs.tobytes()
@@ -168,9 +209,7 @@ class Scorer:
         for a in range(0, n, rows_per_block):
             b = min(n, a + rows_per_block)
             self._block(x[a:b], mask[a:b], d2[a:b], nobs[a:b], drop[a:b], chain[a:b])
-        pval = t2_pvalue(d2, nobs, self.m, phase=self.phase)
-        limit = t2_limit(self.alpha, nobs, self.m, phase=self.phase)
-        assert isinstance(limit, np.ndarray)  # nobs is an array, so t2_limit gives one limit per row
+        pval, limit = self._law_values(d2, nobs)
         alarm = np.zeros(n, dtype=bool)
         scored = ~np.isnan(pval)
         alarm[scored] = pval[scored] < self.alpha
@@ -263,4 +302,6 @@ class Scorer:
             "alpha": self.alpha, "phase": self.phase, "reference_rows": self.m, "sensors": list(self.columns),
             "order": list(self.order), "fdr": fdr, "limit_basis": self.limit_basis,
             "estimator": self.estimator, "digits_trusted": h.digits_trusted, "jitter": h.jitter,
+            "limit_law": "simulated" if self.law is not None else "exact or asymptotic (see limit_basis)",
+            "weak_screen": None if self.weak is None else {k: v for k, v in self.weak.items() if k != "message"},
         }
