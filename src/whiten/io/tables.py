@@ -20,10 +20,10 @@ from typing import Any
 
 from .._validate import select_columns
 from ..errors import InputError
-from ._cells import float_block
+from ._cells import check_field_counts, float_block, header_fields
 
 __all__ = ["open_table", "Table", "select_columns", "read_table_chunks", "table_columns", "table_format",
-           "existing_file", "progress", "write_csv_chunk", "DEFAULT_CHUNKSIZE"]
+           "existing_file", "progress", "write_csv_chunk", "DEFAULT_CHUNKSIZE", "reader_options"]
 
 DEFAULT_CHUNKSIZE = 100_000
 _COMPRESSED = (".gz", ".bz2", ".xz", ".zip", ".zst")
@@ -65,7 +65,7 @@ def existing_file(path: str | os.PathLike, *, missing: str = "data file {path!r}
     return p
 
 
-def open_table(path: str | os.PathLike) -> Table:
+def open_table(path: str | os.PathLike, *, sep: str | None = None, decimal: str | None = None) -> Table:
     """Open a table file: check it exists, tell its format, read its header once.
 
     Parameters
@@ -73,6 +73,14 @@ def open_table(path: str | os.PathLike) -> Table:
     path : str or PathLike
         ``.csv``/``.txt`` (comma), ``.tsv`` (tab), optionally compressed
         (``.gz``, ``.bz2``, ``.xz``, ``.zip``, ``.zst``), or ``.parquet``/``.pq``.
+    sep : str, optional
+        Field separator of a text table, one character (``"tab"`` is a tab);
+        default from the name (comma, or tab for ``.tsv``). ``";"`` with
+        ``decimal=","`` reads the usual European spreadsheet export.
+    decimal : str, optional
+        ``"."`` (default) or ``","``. No thousands separator is read: a
+        cell such as ``1,234`` (decimal ``"."``) or ``1.234`` (decimal ``","``)
+        is an error, never a silent guess.
 
     Returns
     -------
@@ -84,7 +92,15 @@ def open_table(path: str | os.PathLike) -> Table:
     ------
     InputError
         The file is missing or a folder, its name has no known extension,
-        it is empty (not even a header line) or cannot be read.
+        it is empty (not even a header line) or cannot be read; a column
+        name appears twice in the header; the header is one column holding
+        ``;`` or a tab (the separator is wrong: pass ``sep``).
+
+    Notes
+    -----
+    Text tables are checked before any row is used: every line must have as
+    many fields as the header (a thousands separator or an unquoted separator
+    inside a value would shift the fields), else the line of the file is named.
 
     Examples
     --------
@@ -99,25 +115,53 @@ def open_table(path: str | os.PathLike) -> Table:
     """
     p = existing_file(path)
     fmt = table_format(p)
-    return Table(p, fmt, _header(p, fmt))
+    chosen, dec = reader_options(sep, decimal)
+    use = chosen or _SEP.get(fmt, ",")
+    if dec == use:
+        raise InputError(f"--decimal / decimal={dec!r} is also the field separator; choose --sep ';' "
+                         "with --decimal ','")
+    names = _header(p, fmt, use, explicit=chosen is not None)
+    dup = sorted({c for c in names if names.count(c) > 1})
+    if dup:
+        at = "; ".join(f"{d!r} at fields " + ", ".join(str(k + 1) for k, c in enumerate(names) if c == d)
+                       for d in dup)
+        raise InputError(f"data file {str(p)!r}: the header names a column more than once ({at}); "
+                         "give every column its own name")
+    return Table(p, fmt, names, sep=use, decimal=dec)
 
 
-def _header(p: Path, fmt: str) -> list[str]:
+def reader_options(sep: str | None, decimal: str | None) -> tuple[str | None, str]:
+    """``(sep, decimal)`` checked: one character each (``"tab"``/``"\\t"`` is a tab), decimal ``.`` or ``,``."""
+    if sep is not None:
+        if not isinstance(sep, str):
+            raise InputError(f"--sep / sep: expected one character such as ',' ';' or 'tab', got {sep!r}")
+        sep = "\t" if sep.lower() in ("tab", "\\t") else sep
+        if len(sep) != 1 or sep in "\"\r\n" or sep.isalnum() or sep == ".":
+            raise InputError(f"--sep / sep: expected one character such as ',' ';' or 'tab', got {sep!r}")
+    decimal = "." if decimal is None else decimal
+    if decimal not in (".", ","):
+        raise InputError(f"--decimal / decimal: expected '.' or ',', got {decimal!r}")
+    return sep, decimal
+
+
+def _header(p: Path, fmt: str, sep: str, *, explicit: bool) -> list[str]:
     if fmt == "parquet":
         pq = _pyarrow_parquet()
         try:
             return [str(c) for c in pq.ParquetFile(str(p)).schema_arrow.names]
         except Exception as exc:  # pyarrow raises several types for damaged files
             raise InputError(f"data file {str(p)!r} is not a readable Parquet file ({exc})") from None
-    import pandas as pd
-
-    try:
-        head = pd.read_csv(p, nrows=0, sep=_SEP[fmt], skipinitialspace=True)
-    except pd.errors.EmptyDataError:
-        raise InputError(f"data file {str(p)!r} is empty (not even a header line)") from None
-    except (UnicodeDecodeError, pd.errors.ParserError) as exc:
-        raise InputError(f"data file {str(p)!r} could not be read as {fmt.upper()} ({exc})") from None
-    return [str(c) for c in head.columns]
+    names = header_fields(p, sep)
+    if names is None:
+        raise InputError(f"data file {str(p)!r} is empty (not even a header line)")
+    if len(names) == 1 and not explicit:
+        for ch, word in ((";", "';'"), ("\t", "tab"), (",", "','")):
+            if ch != sep and ch in names[0]:
+                hint = " (and --decimal ',' for decimal commas)" if ch == ";" else ""
+                raise InputError(
+                    f"data file {str(p)!r}: the header reads as one column {names[0]!r}, which holds {word}; "
+                    f"the fields are separated by {word}: pass --sep {word}{hint} (sep={ch!r} in Python)")
+    return names
 
 
 class Table:
@@ -132,10 +176,13 @@ class Table:
         The header (Parquet: the schema's names), read once.
     """
 
-    def __init__(self, path: Path, fmt: str, columns: list[str]):
+    def __init__(self, path: Path, fmt: str, columns: list[str], *, sep: str = ",", decimal: str = "."):
         self.path = path
         self.format = fmt
         self.columns = columns
+        self.sep = sep
+        self.decimal = decimal
+        self._shape_checked = fmt == "parquet"
 
     @property
     def where(self) -> str:
@@ -197,8 +244,13 @@ class Table:
                 raise InputError(f"{self.where} is not a readable Parquet file ({exc})") from None
             frames: Iterable = (b.to_pandas() for b in batches)
         else:
-            # every column as text would be slow; pandas infers, then each column is checked
-            frames = pd.read_csv(p, usecols=read, chunksize=chunksize, sep=_SEP[fmt], skipinitialspace=True)
+            if not self._shape_checked:  # a line with more or fewer fields than the header is refused
+                check_field_counts(p, self.sep, len(self.columns), self.where)
+                self._shape_checked = True
+            # every column as text would be slow; pandas infers, then each column is checked. No
+            # usecols: with it pandas reads a long row's first fields silently; names= keeps ours
+            frames = pd.read_csv(p, header=0, names=self.columns, chunksize=chunksize, sep=self.sep,
+                                 decimal=self.decimal, thousands=None, skipinitialspace=True)
         offset = 0
         try:
             for df in frames:
@@ -209,7 +261,8 @@ class Table:
                     idx = pd.Index(df[index_column].to_numpy(), name=index_column)
                 else:
                     idx = pd.RangeIndex(offset, offset + len(df))
-                yield float_block(df, cols, offset, idx, self.where, p, fmt)
+                yield float_block(df, cols, offset, idx, self.where, p, fmt, sep=self.sep,
+                                  decimal=self.decimal)
                 offset += len(df)
         except pd.errors.ParserError as exc:
             raise InputError(f"{self.where}: could not parse near row {offset} ({exc})") from None
