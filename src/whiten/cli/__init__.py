@@ -50,6 +50,23 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def add_reader_options(p) -> None:
+    """``--sep`` and ``--decimal``: how a text table separates fields and writes decimals."""
+    p.add_argument("--sep", metavar="CHAR", default=None,
+                   help="field separator of the data file: one character, or 'tab' (default: ',' and a tab "
+                        "for .tsv); European spreadsheet exports use --sep ';' --decimal ','")
+    p.add_argument("--decimal", choices=[".", ","], default=None,
+                   help="decimal mark of the data file (default '.'); no thousands separator is ever read")
+
+
+def open_data(args, path=None):
+    """The data file of a command opened by the one reader, with its --sep/--decimal."""
+    from ..io.tables import open_table
+
+    return open_table(args.data if path is None else path, sep=getattr(args, "sep", None),
+                      decimal=getattr(args, "decimal", None))
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     tag = "warning" if not issubclass(category, NumericalWarning) else "numerical warning"
     print(f"whiten: {tag}: {message}", file=sys.stderr)

@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from . import add_reader_options, open_data
 
 EPILOG = """\
 examples:
@@ -69,6 +70,7 @@ def add_parser(sub) -> None:
                    help="rows drawn one by one on the control chart (--chart, --report); a longer file is "
                         "pooled into bins of consecutive rows, each showing its largest d2, so no alarm "
                         "is hidden and memory stays flat (default: 20000)")
+    add_reader_options(p)
     p.set_defaults(func=run)
 
 
@@ -103,7 +105,7 @@ def run(args) -> int:
     baseline = load_baseline(model_path)
     # the summary, the charts and the report come from the digest (whiten.monitor.ScoreDigest):
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
-    digest = score_file(baseline, args.data, out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
+    digest = score_file(baseline, open_data(args), out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
                         index_column=args.index_column, chunksize=args.chunksize, force=args.force,
                         chart_points=args.chart_points, worst=_WORST, progress=None)
     at = digest.attrs

@@ -66,7 +66,7 @@ def _not_numeric(where: str, path: Path, fmt: str, column: str, row: int, value:
     at = f"row {row} (0-based data row" + (f"; line {line} of the file)" if line is not None else ")")
     text = str(value).strip()
     if decimal == "," and "." in text:
-        why = ("the file's decimal mark is ',' so '.' would be a thousands separator, which whiten never "
+        why = ("The file's decimal mark is ',' so '.' would be a thousands separator, which whiten never "
                "guesses; remove it, or read the file with --decimal '.'")
     elif decimal == "." and "," in text and text.replace(",", "").replace(".", "").lstrip("+-").isdigit():
         why = ("',' is a thousands separator or a decimal comma, which whiten never guesses; remove the "

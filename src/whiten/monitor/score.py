@@ -29,6 +29,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .. import _engines
+from ..errors import InputError
 from ..io.tables import open_table
 from .fdr import add_fdr
 from .scorer import KINDS, Scorer, column_name
@@ -36,17 +37,19 @@ from .scorer import KINDS, Scorer, column_name
 __all__ = ["score", "Scorer", "KINDS", "column_name", "add_fdr"]
 
 
-def _read_path(path: str | os.PathLike, columns: Sequence[str]):
+def _read_path(path: str | os.PathLike, columns: Sequence[str], sep: str | None = None,
+               decimal: str | None = None):
     """The model's columns of a table file as one DataFrame (whiten.io.tables, in chunks)."""
     import pandas as pd
 
-    table = open_table(path)
+    table = open_table(path, sep=sep, decimal=decimal)
     cols = table.select(columns, what="the model")
     return pd.concat(list(table.chunks(cols)))
 
 
 def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "marginalize",
-          phase: str = "new", fdr: float | None = None, order: Sequence[str] | None = None):
+          phase: str = "new", fdr: float | None = None, order: Sequence[str] | None = None,
+          sep: str | None = None, decimal: str | None = None):
     """Score rows against a baseline: squared distance, exact p-value, alarm, and contributions.
 
     Parameters
@@ -73,6 +76,9 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
         ``alarm`` stays the per-row test.
     order : sequence of str, optional
         Sensor order of the ``chain:`` decomposition (default: the baseline's).
+    sep, decimal : str, optional
+        How a CSV file given as ``data`` separates fields and writes decimals
+        (see :func:`whiten.io.tables.open_table`).
 
     Returns
     -------
@@ -109,5 +115,7 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
         return engine.score(baseline, data, alpha=alpha, missing=missing, phase=phase, fdr=fdr, order=order)
     scorer = Scorer(baseline, alpha=alpha, missing=missing, phase=phase, order=order)
     if isinstance(data, (str, os.PathLike)):
-        data = _read_path(data, scorer.columns)
+        data = _read_path(data, scorer.columns, sep, decimal)
+    elif sep is not None or decimal is not None:
+        raise InputError("sep, decimal: read options of a table file; the data given is not a file path")
     return scorer.frame(data, fdr=fdr)

@@ -30,7 +30,8 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
                alpha: float = 0.001, missing: str = "marginalize", phase: str = "new",
                fdr: float | None = None, order: Sequence[str] | None = None,
                index_column: str | None = None, chunksize: int | None = None, force: bool = False,
-               chart_points: int = 20_000, worst: int = 5, progress: bool | None = False) -> ScoreDigest:
+               chart_points: int = 20_000, worst: int = 5, progress: bool | None = False,
+               sep: str | None = None, decimal: str | None = None) -> ScoreDigest:
     """Score every row of a table file against a baseline and write the score table as CSV.
 
     Parameters
@@ -58,6 +59,9 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         Passed to the :class:`~whiten.monitor.ScoreDigest` returned.
     progress : bool or None
         A progress bar on stderr: ``None`` when stderr is a terminal.
+    sep, decimal : str, optional
+        How the file separates fields and writes decimals (see
+        :func:`whiten.io.tables.open_table`).
 
     Returns
     -------
@@ -94,7 +98,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     scorer = Scorer(baseline, alpha=alpha, missing=missing, phase=phase, order=order)
     if fdr is not None:
         fdr = check_alpha(fdr, "fdr")
-    table = data_path if isinstance(data_path, Table) else open_table(data_path)
+    table = data_path if isinstance(data_path, Table) else open_table(data_path, sep=sep, decimal=decimal)
     out = check_writable(output_path, force=force, what="output")
     if same_file(out, table.path):
         raise InputError(f"output: {str(out)!r} names the data file being read; write the scores elsewhere")
