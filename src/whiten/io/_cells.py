@@ -16,7 +16,7 @@ import os
 import zipfile
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import IO, Any
+from typing import IO, Any, cast
 
 import numpy as np
 
@@ -117,7 +117,7 @@ def _open_binary(path: Path) -> IO[bytes]:
     name = path.name.lower()
     for ext, opener in _TEXT_OPENERS.items():
         if name.endswith(ext):
-            return opener(path, "rb")
+            return cast(IO[bytes], opener(path, "rb"))
     if name.endswith(".zip"):
         zf = zipfile.ZipFile(path)
         return zf.open(zf.namelist()[0])
