@@ -72,6 +72,27 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
     print(f"whiten: {tag}: {message}", file=sys.stderr)
 
 
+class Terminated(KeyboardInterrupt):
+    """SIGTERM turned into an exception, so temporary files are removed on the way out."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
+def _sigterm_handler():
+    """Install the SIGTERM handler (main thread only); returns the previous one, or None."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return None
+    try:
+        return signal.signal(signal.SIGTERM, _on_sigterm)
+    except (ValueError, OSError):  # pragma: no cover - not the main interpreter
+        return None
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
@@ -81,6 +102,7 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     saved = warnings.showwarning
     warnings.showwarning = _show_warning
+    old_term = _sigterm_handler()
     try:
         return int(args.func(args) or 0)
     except WhitenError as exc:
@@ -100,11 +122,18 @@ def main(argv: list[str] | None = None) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 1
+    except Terminated:
+        print(f"whiten {args.command}: terminated; no output written", file=sys.stderr)
+        return 143
     except KeyboardInterrupt:
-        print(f"whiten {args.command}: interrupted", file=sys.stderr)
+        print(f"whiten {args.command}: interrupted; no output written", file=sys.stderr)
         return 130
     finally:
         warnings.showwarning = saved
+        if old_term is not None:
+            import signal
+
+            signal.signal(signal.SIGTERM, old_term)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -95,9 +95,10 @@ def health_lines(b) -> list[str]:
 
 def run(args) -> int:
     from .. import fit_baseline
-    from ..io.atomic import check_writable
+    from ..io.atomic import check_writable, refuse_inputs
 
     check_writable(args.output, force=args.force, what="model")  # before the work, not after
+    refuse_inputs({"-o": args.output}, {"data": args.data})
     b = fit_baseline(open_data(args), estimator=args.estimator, columns=_columns(args.columns),
                      chunksize=args.chunksize, index_column=args.index_column, missing=args.missing,
                      shrinkage=args.shrinkage, weights=args.weight_column)

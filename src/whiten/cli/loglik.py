@@ -131,11 +131,13 @@ def _model(args):
 
 
 def run(args) -> int:
-    from ..io.atomic import check_writable
+    from ..io.atomic import check_writable, refuse_inputs
     from ..likelihood.stream import loglik_file
 
     check_writable(args.output, force=args.force)
     report = getattr(args, "report", None)
+    refuse_inputs({"-o": args.output, "--report": report},
+                  {"data": args.data, "--baseline": args.baseline, "--mean": args.mean, "--cov": args.cov})
     if report:
         check_writable(report, force=args.force, what="report")
     g, names = _model(args)

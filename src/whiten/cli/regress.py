@@ -217,7 +217,7 @@ def _chart(fit, path: str, force: bool) -> None:
 
 def run(args) -> int:
     from .. import fit_linear
-    from ..io.atomic import check_writable, write_text
+    from ..io.atomic import check_writable, refuse_inputs, write_text
 
     check_writable(args.output, force=args.force, what="fit")
     if args.chart:
@@ -226,6 +226,8 @@ def run(args) -> int:
             raise InputError("--chart and -o must be different files")
     if getattr(args, "report", None):
         check_writable(args.report, force=args.force, what="report")
+    refuse_inputs({"-o": args.output, "--chart": args.chart, "--report": getattr(args, "report", None)},
+                  {"data": args.data})
     if not 0 < args.level < 1:
         raise InputError(f"--level: must be strictly between 0 and 1 (e.g. 0.95), got {args.level}")
     preds, df = _select(_read_table(args.data, args), args)

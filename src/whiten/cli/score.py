@@ -76,7 +76,7 @@ def add_parser(sub) -> None:
 
 def run(args) -> int:
     from .. import load_baseline
-    from ..io.atomic import check_writable
+    from ..io.atomic import check_writable, refuse_inputs
     from ..monitor.limits import check_alpha
     from ..monitor.stream import score_file
 
@@ -102,6 +102,8 @@ def run(args) -> int:
             raise InputError("--contributions names the same file as -o or --chart")
     if getattr(args, "report", None):
         check_writable(args.report, force=args.force, what="report")
+    refuse_inputs({"-o": out, "--chart": args.chart, "--contributions": args.contributions,
+                   "--report": getattr(args, "report", None)}, {"data": args.data, "--baseline": model_path})
     baseline = load_baseline(model_path)
     # the summary, the charts and the report come from the digest (whiten.monitor.ScoreDigest):
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
