@@ -64,11 +64,11 @@ def refuse_inputs(outputs: dict, inputs: dict) -> None:
                 raise InputError(f"{k} and {k2} name the same file {str(v)!r}; give each output its own name")
 
 
-def stale_parts(folder: str | os.PathLike) -> list[Path]:
+def stale_parts(folder: str | Path) -> list[Path]:
     """Temporary files of whiten writes in ``folder`` whose process no longer runs (a killed run)."""
     found = []
     try:
-        entries = list(os.scandir(folder))
+        entries = list(os.scandir(str(folder)))
     except OSError:
         return []
     for e in entries:
