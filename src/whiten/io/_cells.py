@@ -53,7 +53,31 @@ def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, whe
             k = int(np.flatnonzero(bad)[0])
             raise _not_numeric(where, path, fmt, c, first_row + k, s.iloc[k], sep, decimal)
         out[:, j] = coerced.to_numpy(dtype=np.float64, na_value=np.nan)
+    _refuse_infinite(out, columns, first_row, index, where, path, fmt, sep)
     return pd.DataFrame(out, index=index, columns=list(columns), copy=False)
+
+
+def _refuse_infinite(out: np.ndarray, columns: Sequence[str], first_row: int, index: Any, where: str,
+                     path: Path, fmt: str, sep: str) -> None:
+    """An infinite cell is an InputError naming file, line, row, label and column (NaN is a missing cell)."""
+    if out.size == 0:
+        return
+    with np.errstate(all="ignore"):
+        sums = np.add.reduce(out, axis=0)  # finite or NaN unless a column holds an infinity (or overflows)
+    if not np.isinf(sums).any() and not np.isnan(sums).any():
+        return
+    bad = np.isinf(out)
+    if not bad.any():
+        return
+    r = int(np.flatnonzero(bad.any(axis=1))[0])
+    c = int(np.flatnonzero(bad[r])[0])
+    line = data_line(path, fmt, first_row + r, sep) if fmt != "parquet" else None
+    name = getattr(index, "name", None)
+    v = index[r]
+    lab = f", index {(v.item() if hasattr(v, 'item') else v)!r}" if name is not None else ""
+    at = (f"line {line}, " if line is not None else "") + f"row {first_row + r} (0-based data row{lab})"
+    raise InputError(f"{where}: {at}, column {columns[c]!r} is {out[r, c]}; every value must be a finite "
+                     "number (leave a reading empty if it is missing)")
 
 
 # a thousands separator: "." when the decimal mark is ",", else "," (or a quote/space between digit groups)

@@ -191,6 +191,20 @@ class Table:
         """How messages name the file: ``"data file '<path>'"``."""
         return f"data file {str(self.path)!r}"
 
+    def line_of(self, row: int) -> int | None:
+        """1-based line of the file where 0-based data row ``row`` starts (``None`` for Parquet)."""
+        from ._cells import data_line
+
+        return None if self.format == "parquet" else data_line(self.path, self.format, row, self.sep)
+
+    def at(self, row: int, label: Any = None) -> str:
+        """How messages name a data row: ``"line 5, row 3 (0-based data row, index 't3')"``."""
+        line = self.line_of(row)
+        if hasattr(label, "item"):
+            label = label.item()
+        lab = f", index {label!r}" if label is not None else ""
+        return (f"line {line}, " if line is not None else "") + f"row {row} (0-based data row{lab})"
+
     def __repr__(self) -> str:
         return f"Table({str(self.path)!r}, format={self.format!r}, columns={self.columns})"
 

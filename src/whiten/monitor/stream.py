@@ -152,9 +152,10 @@ def _values(chunk: Any, scorer: Scorer, table: Table, first: int) -> np.ndarray:
         bad = np.isinf(x) if scorer.missing == "marginalize" else ~np.isfinite(x)
         if bad.any():
             r, c = (int(v) for v in np.argwhere(bad)[0])
-            label = f", index {chunk.index[r]!r}" if chunk.index.name is not None else ""
+            label = chunk.index[r] if chunk.index.name is not None else None
             hint = "" if scorer.missing == "marginalize" else " (missing values are not allowed with missing='error')"
-            raise InputError(f"{table.where}: row {first + r} (0-based data row{label}), column "
-                             f"{scorer.columns[c]!r} is {x[r, c]}{hint}; every value must be a finite number")
+            raise InputError(f"{table.where}: {table.at(first + r, label)}, column "
+                             f"{scorer.columns[c]!r} is {x[r, c]}{hint}; every value must be a finite number"
+                             + (" (leave a reading empty if it is missing)" if not hint else ""))
     return x
 
