@@ -3,13 +3,21 @@
 Every command module defines ``add_parser(subparsers)``, which registers its
 sub-parser and sets ``func`` (a callable taking the parsed arguments and
 returning an exit code). Exit codes: 0 success, 1 data or numerical error
-(one line on stderr, no traceback), 2 usage error (argparse).
+(one line on stderr, no traceback), 2 usage error (argparse), 130 interrupted
+(SIGINT), 143 terminated (SIGTERM); an interrupted or terminated run leaves no
+temporary file behind.
+
+Messages shared with the API name both spellings, the command line's first:
+``--force (force=True in Python)``. The command line prints them without the
+``(... in Python)`` part (:func:`cli_words`), so a command-line user reads
+command-line words only.
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib
+import re
 import sys
 import warnings
 
@@ -67,9 +75,18 @@ def open_data(args, path=None):
                       decimal=getattr(args, "decimal", None))
 
 
+_PYTHON_ONLY = re.compile(r" \([^()]*\bin Python\)")
+
+
+def cli_words(message: object) -> str:
+    """A message for the command line: the ``(... in Python)`` asides removed, control characters escaped."""
+    text = _PYTHON_ONLY.sub("", str(message))
+    return "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     tag = "warning" if not issubclass(category, NumericalWarning) else "numerical warning"
-    print(f"whiten: {tag}: {message}", file=sys.stderr)
+    print(f"whiten: {tag}: {cli_words(message)}", file=sys.stderr)
 
 
 class Terminated(KeyboardInterrupt):
@@ -106,7 +123,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args.func(args) or 0)
     except WhitenError as exc:
-        print(f"whiten {args.command}: error: {exc}", file=sys.stderr)
+        print(f"whiten {args.command}: error: {cli_words(exc)}", file=sys.stderr)
         return 1
     except FileNotFoundError as exc:
         print(f"whiten {args.command}: error: file not found: {exc.filename or exc}", file=sys.stderr)

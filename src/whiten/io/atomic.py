@@ -101,8 +101,8 @@ def _handle_stale(folder: Path, force: bool) -> None:
                       f"killed ({names}; {size} bytes)", UserWarning, stacklevel=4)
     else:
         warnings.warn(f"{len(stale)} temporary file(s) in {str(folder)!r} were left by a run that was killed "
-                      f"({names}; {size} bytes); remove them, or run again with --force (force=True) to "
-                      "have them removed", UserWarning, stacklevel=4)
+                      f"({names}; {size} bytes); remove them, or run again with --force (force=True in "
+                      "Python) to have them removed", UserWarning, stacklevel=4)
 
 
 def _umask() -> int:

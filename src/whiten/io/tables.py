@@ -282,6 +282,10 @@ class Table:
                 offset += len(df)
         except pd.errors.ParserError as exc:
             raise InputError(f"{self.where}: could not parse near row {offset} ({exc})") from None
+        finally:
+            close = getattr(frames, "close", None)
+            if close is not None:  # the file is closed whether the rows were all read or an error stopped them
+                close()
         if offset == 0:
             raise InputError(f"{self.where} has a header but no data rows")
 
