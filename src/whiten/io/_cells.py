@@ -152,7 +152,7 @@ def _open_binary(path: Path) -> IO[bytes]:
     return open(path, "rb")
 
 
-_BLOCK = 1 << 24
+_BLOCK = 1 << 20  # 1 MiB: the per-line arrays stay a few MB whatever the file size
 
 
 def _quoted(path: Path) -> bool:
@@ -184,7 +184,7 @@ def _count_plain(path: Path, sep: str, n: int) -> tuple[int | None, int]:
                 tail = data
                 continue
             upto = int(ends[-1]) + 1
-            seps = np.concatenate(([0], np.cumsum(a[:upto] == code)))
+            seps = np.concatenate(([0], np.cumsum(a[:upto] == code, dtype=np.int32)))
             starts = np.concatenate(([0], ends[:-1] + 1))
             fields = seps[ends] - seps[starts] + 1
             length = ends - starts - (a[np.maximum(ends - 1, 0)] == 13)  # without "\r"
