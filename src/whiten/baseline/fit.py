@@ -39,7 +39,7 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
                  chunksize: int | None = None, weights: Any = None, missing: str = "drop",
                  index_column: str | None = None, method: str = "auto", shrinkage: str = "ledoit-wolf",
                  support_fraction: float | None = None, seed: int | None = None,
-                 progress: bool | None = None) -> Baseline:
+                 progress: bool | None = None, sep: str | None = None, decimal: str | None = None) -> Baseline:
     """Fit a Gaussian baseline (mean and covariance factor) from reference rows.
 
     Parameters
@@ -88,6 +88,9 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         ``LIMIT_SEED``).
     progress : bool, optional
         Force the progress bar on or off (default: when stderr is a terminal).
+    sep, decimal : str, optional
+        How a table file separates fields and writes decimals (see
+        :func:`whiten.io.tables.open_table`), e.g. ``sep=";", decimal=","``.
 
     Returns
     -------
@@ -155,7 +158,7 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     wvals, wcol = _weights_array(weights)
     if (wvals is not None or wcol is not None) and estimator != "sample":
         raise InputError(f"weights: supported with estimator='sample' only, not {estimator!r}")
-    src = Source(data, columns, chunksize, index_column, wcol, progress)
+    src = Source(data, columns, chunksize, index_column, wcol, progress, sep=sep, decimal=decimal)
     clean = Cleaner(src, missing, wvals)
     if estimator == "sample":
         b = _fit_sample(src, clean, method)

@@ -17,7 +17,7 @@ import numpy as np
 from .. import _validate
 from .._settings import current
 from ..errors import InputError
-from ..io.tables import open_table, progress, select_columns
+from ..io.tables import Table, open_table, progress, select_columns
 
 __all__ = ["Source", "array_column_names", "is_frame"]
 
@@ -42,7 +42,8 @@ class Source:
     """Rows from any supported input, as raw blocks (NaN possible), readable again when possible."""
 
     def __init__(self, data: Any, columns: Sequence[str] | None, chunksize: int | None,
-                 index_column: str | None, weight_column: str | None, progress: bool | None):
+                 index_column: str | None, weight_column: str | None, progress: bool | None, *,
+                 sep: str | None = None, decimal: str | None = None):
         self.weight_column = weight_column
         self.progress = progress
         self.chunksize = chunksize
@@ -54,8 +55,11 @@ class Source:
         self._wvals: np.ndarray | None = None
         if chunksize is not None and (not isinstance(chunksize, (int, np.integer)) or chunksize < 1):
             raise InputError(f"chunksize: expected a positive integer, got {chunksize!r}")
-        if isinstance(data, (str, os.PathLike)):
-            self._init_path(os.fspath(data), columns, index_column)
+        if isinstance(data, (str, os.PathLike, Table)):
+            self._init_path(data if isinstance(data, Table) else open_table(os.fspath(data), sep=sep,
+                                                                             decimal=decimal), columns, index_column)
+        elif sep is not None or decimal is not None:
+            raise InputError("sep, decimal: read options of a table file; the data given is not a file path")
         elif is_frame(data):
             self._init_frame(data, columns, index_column)
         elif isinstance(data, np.ndarray) or (isinstance(data, (list, tuple)) and (
@@ -70,10 +74,9 @@ class Source:
                 "Parquet path, or an iterable of DataFrame chunks")
 
     # -- kinds
-    def _init_path(self, path: str, columns, index_column) -> None:
+    def _init_path(self, table: Table, columns, index_column) -> None:
         extra = [self.weight_column] if self.weight_column else []
         # header read and columns checked now (missing file, columns), so errors come before any work
-        table = open_table(path)
         cols = table.select(columns, index_column=index_column, also=extra)
         self.names = cols
         self.reiterable = True

@@ -3,13 +3,21 @@
 Every command module defines ``add_parser(subparsers)``, which registers its
 sub-parser and sets ``func`` (a callable taking the parsed arguments and
 returning an exit code). Exit codes: 0 success, 1 data or numerical error
-(one line on stderr, no traceback), 2 usage error (argparse).
+(one line on stderr, no traceback), 2 usage error (argparse), 130 interrupted
+(SIGINT), 143 terminated (SIGTERM); an interrupted or terminated run leaves no
+temporary file behind.
+
+Messages shared with the API name both spellings, the command line's first:
+``--force (force=True in Python)``. The command line prints them without the
+``(... in Python)`` part (:func:`cli_words`), so a command-line user reads
+command-line words only.
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib
+import re
 import sys
 import warnings
 
@@ -50,9 +58,56 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def add_reader_options(p) -> None:
+    """``--sep`` and ``--decimal``: how a text table separates fields and writes decimals."""
+    p.add_argument("--sep", metavar="CHAR", default=None,
+                   help="field separator of the data file: one character, or 'tab' (default: ',' and a tab "
+                        "for .tsv); European spreadsheet exports use --sep ';' --decimal ','")
+    p.add_argument("--decimal", choices=[".", ","], default=None,
+                   help="decimal mark of the data file (default '.'); no thousands separator is ever read")
+
+
+def open_data(args, path=None):
+    """The data file of a command opened by the one reader, with its --sep/--decimal."""
+    from ..io.tables import open_table
+
+    return open_table(args.data if path is None else path, sep=getattr(args, "sep", None),
+                      decimal=getattr(args, "decimal", None))
+
+
+_PYTHON_ONLY = re.compile(r" \([^()]*\bin Python\)")
+
+
+def cli_words(message: object) -> str:
+    """A message for the command line: the ``(... in Python)`` asides removed, control characters escaped."""
+    text = _PYTHON_ONLY.sub("", str(message))
+    return "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
+
+
 def _show_warning(message, category, filename, lineno, file=None, line=None):
     tag = "warning" if not issubclass(category, NumericalWarning) else "numerical warning"
-    print(f"whiten: {tag}: {message}", file=sys.stderr)
+    print(f"whiten: {tag}: {cli_words(message)}", file=sys.stderr)
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM turned into an exception, so temporary files are removed on the way out."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
+def _sigterm_handler():
+    """Install the SIGTERM handler (main thread only); returns the previous one, or None."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return None
+    try:
+        return signal.signal(signal.SIGTERM, _on_sigterm)
+    except (ValueError, OSError):  # pragma: no cover - not the main interpreter
+        return None
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -64,10 +119,11 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     saved = warnings.showwarning
     warnings.showwarning = _show_warning
+    old_term = _sigterm_handler()
     try:
         return int(args.func(args) or 0)
     except WhitenError as exc:
-        print(f"whiten {args.command}: error: {exc}", file=sys.stderr)
+        print(f"whiten {args.command}: error: {cli_words(exc)}", file=sys.stderr)
         return 1
     except FileNotFoundError as exc:
         print(f"whiten {args.command}: error: file not found: {exc.filename or exc}", file=sys.stderr)
@@ -83,11 +139,18 @@ def main(argv: list[str] | None = None) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 1
+    except Terminated:
+        print(f"whiten {args.command}: terminated; no output written", file=sys.stderr)
+        return 143
     except KeyboardInterrupt:
-        print(f"whiten {args.command}: interrupted", file=sys.stderr)
+        print(f"whiten {args.command}: interrupted; no output written", file=sys.stderr)
         return 130
     finally:
         warnings.showwarning = saved
+        if old_term is not None:
+            import signal
+
+            signal.signal(signal.SIGTERM, old_term)
 
 
 if __name__ == "__main__":  # pragma: no cover

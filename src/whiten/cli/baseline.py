@@ -6,6 +6,7 @@ import argparse
 import math
 
 from ..errors import InputError
+from . import add_reader_options, open_data
 
 EPILOG = """\
 examples:
@@ -45,6 +46,7 @@ def add_parser(sub) -> None:
     p.add_argument("--missing", choices=["drop", "error"], default="drop",
                    help="incomplete rows: drop and count them (default) or stop at the first")
     p.add_argument("--force", action="store_true", help="replace the model file if it exists")
+    add_reader_options(p)
     p.set_defaults(func=run)
 
 
@@ -103,10 +105,11 @@ def health_lines(b) -> list[str]:
 
 def run(args) -> int:
     from .. import fit_baseline
-    from ..io.atomic import check_writable
+    from ..io.atomic import check_writable, refuse_inputs
 
     check_writable(args.output, force=args.force, what="model")  # before the work, not after
-    b = fit_baseline(args.data, estimator=args.estimator, columns=_columns(args.columns),
+    refuse_inputs({"-o": args.output}, {"data": args.data})
+    b = fit_baseline(open_data(args), estimator=args.estimator, columns=_columns(args.columns),
                      chunksize=args.chunksize, index_column=args.index_column, missing=args.missing,
                      shrinkage=args.shrinkage, weights=args.weight_column)
     path = b.save(args.output, force=args.force)
@@ -115,3 +118,4 @@ def run(args) -> int:
         print(f"  {line}")
     print(f"wrote {path}")
     return 0
+

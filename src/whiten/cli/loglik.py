@@ -9,6 +9,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..io.tables import select_columns
+from . import add_reader_options, open_data
 
 EPILOG = """\
 examples:
@@ -43,6 +44,7 @@ def add_parser(sub) -> None:
     p.add_argument("-o", "--output", required=True, metavar="OUT.csv", help="where to write the per-row values")
     p.add_argument("--force", action="store_true", help="replace the output file if it exists")
     p.add_argument("--report", metavar="FILE.html", help="also write a one-file HTML report (whiten.report)")
+    add_reader_options(p)
     p.set_defaults(func=run)
 
 
@@ -129,16 +131,18 @@ def _model(args):
 
 
 def run(args) -> int:
-    from ..io.atomic import check_writable
+    from ..io.atomic import check_writable, refuse_inputs
     from ..likelihood.stream import loglik_file
 
     check_writable(args.output, force=args.force)
     report = getattr(args, "report", None)
+    refuse_inputs({"-o": args.output, "--report": report},
+                  {"data": args.data, "--baseline": args.baseline, "--mean": args.mean, "--cov": args.cov})
     if report:
         check_writable(report, force=args.force, what="report")
     g, names = _model(args)
     # streamed into a temporary sibling, renamed into place only when complete
-    res = loglik_file(g, args.data, args.output, columns=names, force=args.force, keep_rows=bool(report))
+    res = loglik_file(g, open_data(args), args.output, columns=names, force=args.force, keep_rows=bool(report))
     total, evaluated, partial, empty, rows = res.total, res.evaluated, res.partial, res.empty, res.rows
     note = f"; {partial} with missing values evaluated on their marginal" if partial else ""
     note += f"; {empty} with no values skipped" if empty else ""

@@ -9,6 +9,7 @@ import math
 import os
 
 from ..errors import InputError
+from . import add_reader_options
 
 EPILOG = """\
 examples:
@@ -59,14 +60,15 @@ def add_parser(sub) -> None:
     p.add_argument("--chart", metavar="FILE.png", help="write diagnostic charts (PNG)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
     p.add_argument("--report", metavar="FILE.html", help="also write a one-file HTML report (whiten.report)")
+    add_reader_options(p)
     p.set_defaults(func=run)
 
 
-def _read_table(path: str):
+def _read_table(path: str, args=None):
     """The table, opened by the one reader (whiten.io.tables): file checked, header read."""
     from ..io.tables import open_table
 
-    return open_table(path)
+    return open_table(path, sep=getattr(args, "sep", None), decimal=getattr(args, "decimal", None))
 
 
 def _select(table, args):
@@ -215,7 +217,7 @@ def _chart(fit, path: str, force: bool) -> None:
 
 def run(args) -> int:
     from .. import fit_linear
-    from ..io.atomic import check_writable, write_text
+    from ..io.atomic import check_writable, refuse_inputs, write_text
 
     check_writable(args.output, force=args.force, what="fit")
     if args.chart:
@@ -224,9 +226,11 @@ def run(args) -> int:
             raise InputError("--chart and -o must be different files")
     if getattr(args, "report", None):
         check_writable(args.report, force=args.force, what="report")
+    refuse_inputs({"-o": args.output, "--chart": args.chart, "--report": getattr(args, "report", None)},
+                  {"data": args.data})
     if not 0 < args.level < 1:
         raise InputError(f"--level: must be strictly between 0 and 1 (e.g. 0.95), got {args.level}")
-    preds, df = _select(_read_table(args.data), args)
+    preds, df = _select(_read_table(args.data, args), args)
     x = df[preds]
     y = df[args.response]
     w = df[args.weights] if args.weights else None

@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from . import add_reader_options, open_data
 
 EPILOG = """\
 examples:
@@ -88,12 +89,13 @@ def add_parser(sub) -> None:
     p.add_argument("--persist", default=None, metavar="K/M",
                    help="also alarm when K of the last M rows exceed a per-row level chosen so that this rule's "
                         "false-alarm rate per healthy row is alpha (e.g. 3/5)")
+    add_reader_options(p)
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
     from .. import load_baseline
-    from ..io.atomic import check_writable
+    from ..io.atomic import check_writable, refuse_inputs
     from ..monitor.limits import check_alpha
     from ..monitor.stream import score_file
 
@@ -131,10 +133,12 @@ def run(args) -> int:
             raise InputError("--contributions names the same file as -o or --chart")
     if getattr(args, "report", None):
         check_writable(args.report, force=args.force, what="report")
+    refuse_inputs({"-o": out, "--chart": args.chart, "--contributions": args.contributions,
+                   "--report": getattr(args, "report", None)}, {"data": args.data, "--baseline": model_path})
     baseline = load_baseline(model_path)
     # the summary, the charts and the report come from the digest (whiten.monitor.ScoreDigest):
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
-    digest = score_file(baseline, args.data, out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
+    digest = score_file(baseline, open_data(args), out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
                         index_column=args.index_column, chunksize=args.chunksize, force=args.force,
                         chart_points=args.chart_points, worst=_WORST, progress=None,
                         ewma=args.ewma, ewma_arl=args.ewma_arl, persist=args.persist)

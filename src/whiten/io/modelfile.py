@@ -13,6 +13,13 @@ separators=(",", ":"), ensure_ascii=True, allow_nan=False)``; floats are
 written by ``repr``, which reads back to the same binary64 value. Files are
 written atomically (temporary file + rename, :mod:`whiten.io.atomic`) and never
 replace an existing file unless ``force=True``.
+
+The SHA-256 detects accidental damage (a truncated copy, a hand edit, a bad
+disk); it is not an authentication: anyone who can edit the file can write a
+matching checksum, so a model file from an untrusted source must be treated
+like any other untrusted data. Reading is bounded: a file larger than
+:data:`MAX_MODEL_BYTES` or nested deeper than :data:`MAX_DEPTH` is refused,
+and every failure is a :class:`~whiten.errors.ModelFileError`.
 """
 
 from __future__ import annotations
@@ -28,7 +35,29 @@ from .._numerics import json_ready
 from ..errors import ModelFileError
 from .atomic import write_text
 
-__all__ = ["write_model", "read_model", "canonical", "checksum", "utc_now", "jsonable"]
+__all__ = ["write_model", "read_model", "canonical", "checksum", "utc_now", "jsonable", "MAX_MODEL_BYTES",
+           "MAX_DEPTH"]
+
+MAX_MODEL_BYTES = 512 * 1024 * 1024
+"""Largest model file read (512 MiB: a 4000-sensor baseline is about 170 MB)."""
+MAX_DEPTH = 32
+"""Deepest nesting of lists and objects in a model file (whiten writes at most 6 levels)."""
+
+
+def _depth(value: Any, limit: int) -> int:
+    """Nesting depth of parsed JSON, stopping once past ``limit``."""
+    stack = [(value, 1)]
+    deepest = 0
+    while stack:
+        v, d = stack.pop()
+        if d > limit:
+            return d
+        deepest = max(deepest, d)
+        if isinstance(v, dict):
+            stack.extend((x, d + 1) for x in v.values() if isinstance(x, (dict, list)))
+        elif isinstance(v, list):
+            stack.extend((x, d + 1) for x in v if isinstance(x, (dict, list)))
+    return deepest
 
 
 def utc_now() -> str:
@@ -81,9 +110,16 @@ def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()
     if p.is_dir():
         raise ModelFileError(f"model path {str(p)!r} is a folder, not a model file")
     try:
+        size = p.stat().st_size
+        if size > MAX_MODEL_BYTES:
+            raise ModelFileError(f"model file {str(p)!r} is {size / 2**20:.0f} MiB, over the limit of "
+                                 f"{MAX_MODEL_BYTES / 2**20:.0f} MiB for a model file; it is not a whiten model "
+                                 "file, or a model too large to load safely")
         text = p.read_text(encoding="utf-8")
     except UnicodeDecodeError:
         raise ModelFileError(f"model file {str(p)!r} is not text; it is not a whiten model file") from None
+    except OSError as exc:
+        raise ModelFileError(f"model file {str(p)!r} cannot be read ({exc.strerror or exc})") from None
     if not text.strip():
         raise ModelFileError(f"model file {str(p)!r} is empty")
     try:
@@ -92,6 +128,12 @@ def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()
         raise ModelFileError(
             f"model file {str(p)!r} is not valid JSON (line {exc.lineno}, column {exc.colno}): "
             "it is truncated or damaged; write it again") from None
+    except (RecursionError, MemoryError, ValueError):
+        raise ModelFileError(f"model file {str(p)!r} is nested too deeply or too large to be a whiten model "
+                             "file") from None
+    if _depth(doc, MAX_DEPTH) > MAX_DEPTH:
+        raise ModelFileError(f"model file {str(p)!r} is nested deeper than {MAX_DEPTH} levels; it is not a "
+                             "whiten model file")
     if not isinstance(doc, dict) or "format" not in doc:
         raise ModelFileError(f"model file {str(p)!r} has no 'format' field; it is not a whiten model file")
     got = doc.get("format")
@@ -107,7 +149,7 @@ def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()
         raise ModelFileError(f"model file {str(p)!r} lacks its payload or checksum")
     try:
         actual = checksum(payload)
-    except ValueError:
+    except (ValueError, TypeError, RecursionError):
         raise ModelFileError(f"model file {str(p)!r} holds values that are not plain JSON numbers") from None
     if actual != digest:
         raise ModelFileError(

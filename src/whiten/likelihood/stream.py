@@ -55,7 +55,7 @@ class LoglikFileSummary:
 
 def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: str | os.PathLike, *,
                 columns: Sequence[str] | None = None, chunksize: int | None = None, force: bool = False,
-                keep_rows: bool = False) -> LoglikFileSummary:
+                keep_rows: bool = False, sep: str | None = None, decimal: str | None = None) -> LoglikFileSummary:
     """Write ``row,loglik,d2,n_observed`` for every row of a table file under a Gaussian.
 
     Parameters
@@ -76,6 +76,9 @@ def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: s
         Replace ``output_path`` if it exists.
     keep_rows : bool
         Also return every row's evaluation (memory grows with the file).
+    sep, decimal : str, optional
+        How the file separates fields and writes decimals (see
+        :func:`whiten.io.tables.open_table`).
 
     Returns
     -------
@@ -100,7 +103,7 @@ def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: s
     (3, 2, 1, 1)
     """
     names = list(model.columns if columns is None else columns)
-    table = data_path if isinstance(data_path, Table) else open_table(data_path)
+    table = data_path if isinstance(data_path, Table) else open_table(data_path, sep=sep, decimal=decimal)
     out = check_writable(output_path, force=force)
     if same_file(out, table.path):
         raise InputError(f"output: {str(out)!r} names the data file being read; write elsewhere")

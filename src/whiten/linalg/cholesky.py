@@ -47,8 +47,11 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
         increasing ladder of diagonal jitter ``jitter_start * mean(diag a)``,
         ... up to ``jitter_ceiling * mean(diag a)`` (see :func:`whiten.options`),
         with a :class:`~whiten.errors.JitterWarning` giving the amount.
-        ``False``: never add jitter; failure raises. A float: add exactly this
-        absolute amount to the diagonal (recorded, no warning).
+        ``False``: never add jitter; failure raises. A non-negative number:
+        add exactly this absolute amount to the diagonal; a positive amount is
+        recorded (``jitter``) and disclosed with a ``JitterWarning`` like every
+        other jitter. Anything else (``True``, ``None``, a string, NaN, a
+        negative number) is an ``InputError``.
     columns : sequence of str, optional
         Column (variable) labels used in messages and results.
 
@@ -87,6 +90,7 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
     >>> f.jitter, bool(f.digits_lost < 1)
     (0.0, True)
     """
+    jitter = _check_jitter(jitter)
     opts = current()
     m, frame_names = as_square(a, name="a")
     names = list(columns) if columns is not None else frame_names
@@ -104,8 +108,6 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
         raise NotPositiveDefiniteError("a: is the zero matrix; nothing to factor", pivot=0, value=0.0)
 
     if jitter is not False and jitter != "auto":
-        if isinstance(jitter, str) or not np.isfinite(float(jitter)) or float(jitter) < 0:
-            raise InputError(f"jitter: expected 'auto', False or a non-negative float, got {jitter!r}")
         amount = float(jitter)
         mj = m + amount * np.eye(m.shape[0])
         lower, _, info, rc_s, anorm = factor_scaled(mj)
@@ -113,8 +115,14 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
             raise NotPositiveDefiniteError(
                 f"a + {amount:.3g}*I is not positive definite (failed at pivot {_name(names, info - 1)}); "
                 "use a larger jitter or jitter='auto'", pivot=info - 1)
-        return _finish(lower, mj, rc_s, anorm, amount, amount / mean_diag,
-                       "cholesky" if amount == 0 else "cholesky+jitter", names, opts)
+        f = _finish(lower, mj, rc_s, anorm, amount, amount / mean_diag,
+                    "cholesky" if amount == 0 else "cholesky+jitter", names, opts)
+        if amount > 0:
+            warn(JitterWarning,
+                 f"added jitter {amount:.3g} to the diagonal as asked ({amount / mean_diag:.1e} of the mean "
+                 f"diagonal); condition after: rcond {f.rcond:.3g}, about {f.digits_lost:.1f} digits lost. "
+                 "Results describe a + jitter*I")
+        return f
 
     lower, sc, info, rc_s, anorm = factor_scaled(m)
     if info == 0:
@@ -172,3 +180,14 @@ def _finish(lower, m, rc_s, anorm, amount, rel, method, names, opts, conditionin
              f"(threshold {opts.digits_warn:g}). Consider removing near-redundant variables "
              "(whiten.pivoted_cholesky names them) or a shrinkage estimate")
     return f
+
+
+def _check_jitter(jitter: Any) -> str | bool | float:
+    """``"auto"``, ``False`` or a finite non-negative number; else an InputError saying what is accepted."""
+    if jitter is False or (isinstance(jitter, str) and jitter == "auto"):
+        return jitter
+    ok = isinstance(jitter, (int, float, np.integer, np.floating)) and not isinstance(jitter, (bool, np.bool_))
+    if ok and np.isfinite(float(jitter)) and float(jitter) >= 0:
+        return float(jitter)
+    raise InputError(f"jitter: expected 'auto', False or a non-negative number (an amount added to the "
+                     f"diagonal), got {jitter!r}")

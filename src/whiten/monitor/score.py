@@ -42,18 +42,20 @@ from .scorer import KINDS, Scorer, column_name
 __all__ = ["score", "Scorer", "KINDS", "column_name", "add_fdr"]
 
 
-def _read_path(path: str | os.PathLike, columns: Sequence[str]):
+def _read_path(path: str | os.PathLike, columns: Sequence[str], sep: str | None = None,
+               decimal: str | None = None):
     """The model's columns of a table file as one DataFrame (whiten.io.tables, in chunks)."""
     import pandas as pd
 
-    table = open_table(path)
+    table = open_table(path, sep=sep, decimal=decimal)
     cols = table.select(columns, what="the model")
     return pd.concat(list(table.chunks(cols)))
 
 
 def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "marginalize",
           phase: str = "new", fdr: float | None = None, order: Sequence[str] | None = None,
-          ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None):
+          ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None,
+          sep: str | None = None, decimal: str | None = None):
     """Score rows against a baseline: squared distance, exact p-value, alarm, and contributions.
 
     Parameters
@@ -93,6 +95,9 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
         per-row level chosen so that the rule's false-alarm rate per row is
         ``alpha`` for independent rows (binomial tail); see
         :mod:`whiten.monitor.persistence`.
+    sep, decimal : str, optional
+        How a CSV file given as ``data`` separates fields and writes decimals
+        (see :func:`whiten.io.tables.open_table`).
 
     Returns
     -------
@@ -137,7 +142,9 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
         return engine.score(baseline, data, alpha=alpha, missing=missing, phase=phase, fdr=fdr, order=order)
     scorer = Scorer(baseline, alpha=alpha, missing=missing, phase=phase, order=order)
     if isinstance(data, (str, os.PathLike)):
-        data = _read_path(data, scorer.columns)
+        data = _read_path(data, scorer.columns, sep, decimal)
+    elif sep is not None or decimal is not None:
+        raise InputError("sep, decimal: read options of a table file; the data given is not a file path")
     drift = DriftRules(scorer, ewma=ewma, ewma_arl=ewma_arl, persist=persist)
     if not drift.active:
         return scorer.frame(data, fdr=fdr)

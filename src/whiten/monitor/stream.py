@@ -32,7 +32,8 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
                fdr: float | None = None, order: Sequence[str] | None = None,
                index_column: str | None = None, chunksize: int | None = None, force: bool = False,
                chart_points: int = 20_000, worst: int = 5, progress: bool | None = False,
-               ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None) -> ScoreDigest:
+               ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None,
+               sep: str | None = None, decimal: str | None = None) -> ScoreDigest:
     """Score every row of a table file against a baseline and write the score table as CSV.
 
     Parameters
@@ -64,6 +65,9 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         The drift rules, as for :func:`whiten.monitor.score`: the smoothed
         vector and the persistence window carry from one chunk to the next,
         so the columns equal those of one in-memory call on the whole file.
+    sep, decimal : str, optional
+        How the file separates fields and writes decimals (see
+        :func:`whiten.io.tables.open_table`).
 
     Returns
     -------
@@ -104,7 +108,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     drift = DriftRules(scorer, ewma=ewma, ewma_arl=ewma_arl, persist=persist)
     if fdr is not None:
         fdr = check_alpha(fdr, "fdr")
-    table = data_path if isinstance(data_path, Table) else open_table(data_path)
+    table = data_path if isinstance(data_path, Table) else open_table(data_path, sep=sep, decimal=decimal)
     out = check_writable(output_path, force=force, what="output")
     if same_file(out, table.path):
         raise InputError(f"output: {str(out)!r} names the data file being read; write the scores elsewhere")
@@ -162,9 +166,10 @@ def _values(chunk: Any, scorer: Scorer, table: Table, first: int) -> np.ndarray:
         bad = np.isinf(x) if scorer.missing == "marginalize" else ~np.isfinite(x)
         if bad.any():
             r, c = (int(v) for v in np.argwhere(bad)[0])
-            label = f", index {chunk.index[r]!r}" if chunk.index.name is not None else ""
+            label = chunk.index[r] if chunk.index.name is not None else None
             hint = "" if scorer.missing == "marginalize" else " (missing values are not allowed with missing='error')"
-            raise InputError(f"{table.where}: row {first + r} (0-based data row{label}), column "
-                             f"{scorer.columns[c]!r} is {x[r, c]}{hint}; every value must be a finite number")
+            raise InputError(f"{table.where}: {table.at(first + r, label)}, column "
+                             f"{scorer.columns[c]!r} is {x[r, c]}{hint}; every value must be a finite number"
+                             + (" (leave a reading empty if it is missing)" if not hint else ""))
     return x
 
