@@ -35,6 +35,7 @@ from ..linalg.cholesky import cholesky
 from ..linalg.factor import Factor, FactorHealth
 from ..linalg.structured import StructuredCovariance
 from ..linalg.triangular import stack_solve_lower
+from .accuracy import LikelihoodDigits, likelihood_digits, stack_digits
 
 __all__ = ["gaussian_loglik", "LikelihoodSummary", "as_covariance"]
 
@@ -65,6 +66,12 @@ class LikelihoodSummary:
     health : FactorHealth or None
         Of the covariance factor; None for a stack of covariances (each matrix
         factored by ``numpy.linalg.cholesky`` without a condition estimate).
+    digits : LikelihoodDigits or None
+        The two digits statements of ``logdet``, ``chi2`` and ``loglik``:
+        ``trusted_*`` (sensitivity to the data: digits that survive a change of
+        one unit in the last digit of every input) and ``solved_*`` (accuracy of
+        the computation for the data as given). None for a stack of more than
+        256 covariances.
     """
 
     loglik: Any
@@ -74,6 +81,7 @@ class LikelihoodSummary:
     log_p_value: Any
     logdet: Any
     health: FactorHealth | None = None
+    digits: LikelihoodDigits | None = None
 
     def to_dict(self) -> dict:
         return fields_to_dict(self)
@@ -98,7 +106,7 @@ def as_covariance(cov: Any):
     return cholesky(cov)
 
 
-def _finish(chi2, logdet, n, health, one, details=True):
+def _finish(chi2, logdet, n, health, one, details=True, digits=None):
     from scipy import stats
 
     chi2 = np.asarray(chi2, dtype=float)
@@ -112,7 +120,7 @@ def _finish(chi2, logdet, n, health, one, details=True):
         ll, chi2, p, lp, logdet = (float(np.asarray(v).reshape(-1)[0]) for v in (ll, chi2, p, lp, logdet))
     else:
         logdet = np.broadcast_to(logdet, chi2.shape).copy()
-    return ll, LikelihoodSummary(ll, chi2, int(n), p, lp, logdet, health)
+    return ll, LikelihoodSummary(ll, chi2, int(n), p, lp, logdet, health, digits)
 
 
 def _first_failing(a: np.ndarray) -> tuple[tuple[int, ...], int | None]:
@@ -174,7 +182,8 @@ def _batched(resid: Any, cov: np.ndarray, mean: Any, return_details: bool):
     logdet = 2.0 * np.sum(np.log(np.diagonal(lower, axis1=-2, axis2=-1)), axis=-1)
     chi2 = np.broadcast_to(chi2, batch)
     logdet = np.broadcast_to(logdet, batch)
-    ll, details = _finish(chi2, logdet, n, None, one=False, details=return_details)
+    digits = stack_digits(a, r, chi2, logdet, batch) if return_details else None
+    ll, details = _finish(chi2, logdet, n, None, one=False, details=return_details, digits=digits)
     return details if return_details else ll
 
 
@@ -278,8 +287,12 @@ def gaussian_loglik(resid: Any, cov: Any, *, mean: Any = None, return_details: b
     else:
         chi2 = np.asarray(f.quad(rows, shift=shift)).reshape(batch)
     # the health (and its unscaled condition estimate) is made only for the details
+    digits = None
+    if return_details:
+        shifted = rows if shift is None else rows - shift
+        digits = likelihood_digits(f, shifted, chi2, f.logdet(), one, batch)
     ll, details = _finish(chi2, f.logdet(), n, f.health if return_details else None, one,
-                          details=return_details)
+                          details=return_details, digits=digits)
     if return_details:
         return details
     if index is not None:
