@@ -124,8 +124,8 @@ class Baseline:
     @property
     def limit_law(self) -> SimulatedLaw | None:
         """The simulated law of a new row's d2 (:mod:`whiten.monitor.calibrated`), or None where the
-        exact law (unweighted sample estimate) or the asymptotic one (m p above
-        ``ASYMPTOTIC_CELLS``) serves."""
+        exact law (unweighted sample estimate) or the asymptotic one (robust and weighted baselines
+        with m p above ``ASYMPTOTIC_CELLS``; shrinkage is always simulated) serves."""
         return self._law
 
     @property

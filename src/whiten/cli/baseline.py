@@ -89,12 +89,27 @@ def health_lines(b) -> list[str]:
     out.append(f"condition (correlation scale): {cond_s}; about {h.digits_lost:.1f} digits lost, "
                f"~{h.digits_trusted:.0f} trusted")
     law = getattr(b, "limit_law", None)
+    from ..monitor.calibrated import ASYMPTOTIC_CELLS, simulated_always
+    from ..monitor.limits import screen_check, t2_limit
+
     if law is not None:
-        out.append("limit of new rows: " + law.describe(0.001))
+        out.append("limit of new rows (simulated law): " + law.describe(0.001))
+        lim = law.isf(0.001)
     elif b.estimator == "sample" and not prm.get("weighted"):
-        out.append(f"limit of new rows: exact F law of the sample estimator with m = {b.n} (Tracy, Young & Mason 1992)")
+        out.append(f"limit of new rows (exact law): the F law of the sample estimator with m = {b.n} "
+                   "(Tracy, Young & Mason 1992)")
+        lim = float(t2_limit(0.001, b.dim, b.n, phase="new"))
+    elif int(prm.get("n_total", b.n)) * b.dim > ASYMPTOTIC_CELLS and not simulated_always(b.estimator):
+        out.append(f"limit of new rows (asymptotic law): the sample estimator's F law with m = {b.n} "
+                   f"(m p = {int(prm.get('n_total', b.n)) * b.dim} > {ASYMPTOTIC_CELLS} reference cells)")
+        lim = float(t2_limit(0.001, b.dim, b.n, phase="new"))
     else:
-        out.append(f"limit of new rows: asymptotic (m p = {b.n * b.dim} reference cells): the sample estimator's F law")
+        out.append("limit of new rows (approximate law): the sample estimator's F law; this model carries no "
+                   "simulated law, refit it for a limit that holds")
+        lim = float(t2_limit(0.001, b.dim, b.n, phase="new")) if b.n > b.dim else math.inf
+    from .score import weak_lines
+
+    out.extend(weak_lines(screen_check(lim, 0.001, b.dim, b.n)))
     if law is not None and law.flagged_mean is not None:
         out.append(f"clean Gaussian data of {law.m} rows would give {law.flagged_mean:.1f} +- {law.flagged_se:.1f} "
                    f"outlier(s) at this cut (simulated; {0.025 * law.m:.1f} if the parameters were known)")

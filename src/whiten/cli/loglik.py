@@ -30,6 +30,11 @@ log-likelihood over the evaluated rows is printed.
 """
 
 
+LAW_SENTENCE = ("p-values (--report): the upper tail of chi-square(n_observed) at d2, the law of a row when the mean "
+                "and covariance are known exactly; `whiten score` uses the law of the estimated baseline (exact F, "
+                "simulated or asymptotic), so its p-value for the same row is larger")
+
+
 def add_parser(sub) -> None:
     p = sub.add_parser(
         "loglik", help="per-row Gaussian log-likelihood of a table",
@@ -150,6 +155,7 @@ def run(args) -> int:
     h = g.health
     jit = f", jitter {h.jitter:.3g} added to the diagonal" if h.jitter else ""
     print(f"covariance: about {h.digits_trusted:.0f} significant digits trusted in solves (rcond {h.rcond:.3g}{jit})")
+    print(LAW_SENTENCE)
     print(f"wrote {args.output}")
     if report:  # --report: one self-contained HTML file (whiten.report)
         from ..report import cli_provenance, likelihood_report

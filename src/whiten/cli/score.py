@@ -148,12 +148,13 @@ def run(args) -> int:
     lines = [
         f"scored {n_rows} rows of {args.data} against {args.baseline} "
         f"({len(sensors)} sensors, {at['reference_rows']} reference rows, phase {at['phase']!r})",
-        f"limit: {at['limit_basis']}",
+        f"limit ({at.get('limit_law', 'law')} law): {at['limit_basis']}",
         f"model accuracy: distances trusted to about {at['digits_trusted']:.0f} significant "
         f"digits (jitter {at['jitter']:g})",
         f"alarms at alpha={at['alpha']:g}: {digest.n_alarm} ({100.0 * digest.n_alarm / max(n_rows, 1):.2f}%); "
         f"about {at['alpha'] * (n_rows - digest.n_none):.1f} expected by chance if all rows were healthy",
     ]
+    lines.extend(weak_lines(at.get("weak_screen")))
     if args.fdr is not None:
         lines.append(f"flagged by Benjamini-Hochberg at FDR {args.fdr:g} across the file: {digest.n_fdr or 0}")
     lines.extend(_drift_lines(digest))
@@ -212,6 +213,16 @@ def run(args) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
     return 0
+
+
+def weak_lines(weak) -> list[str]:
+    """The weak-screen line (``attrs["weak_screen"]`` or ``screen_check``'s dict), or none."""
+    if not weak:
+        return []
+    return [f"weak screen: the limit {weak['limit']:.4g} at alpha={weak['alpha']:g} is {weak['ratio']:.3g} times the "
+            f"known-parameter chi-square limit {weak['chi2_limit']:.4g}; about {weak['rows_needed']} reference rows "
+            f"(now {weak['reference_rows']}) would bring it within 10% (by the sample estimator's exact law); "
+            "faults can go unseen until then"]
 
 
 def _drift_lines(digest) -> list[str]:

@@ -22,9 +22,16 @@ chi-square's exponential tail, so p-values below 1e-4 are on the large,
 cautious side) and the law says so.
 
 Cost: ``draws`` refits of m x p rows plus ``draws x rows_per_draw`` solves;
-for m * p above :data:`ASYMPTOTIC_CELLS` the estimation error is O(p / m) and
-the exact law of the sample estimator with m rows serves (stated as
-asymptotic); no simulation then runs. The robust refits use
+for robust and weighted baselines with m * p above :data:`ASYMPTOTIC_CELLS`
+the estimation error is O(p / m) and the exact law of the sample estimator
+with m rows serves (stated as asymptotic); no simulation then runs
+(``tests/monitor/test_asymptotic_switch.py`` checks the false-alarm rate just
+above the threshold). Shrinkage baselines are always simulated: the shrinkage
+intensity is a bias that does not vanish as fast as p / m (at p = 20,
+m = 10001 the sample law gave a false-alarm rate of 0.0069 for alpha 0.01);
+above :data:`ASYMPTOTIC_CELLS` the draws are cut to keep the cost near
+:data:`SIM_CELLS` simulated reference cells (never below 20 draws), and the
+Monte Carlo error stated grows accordingly. The robust refits use
 :data:`ROBUST_STARTS` random starts instead of 500 (clean Gaussian draws have
 no outliers to escape, so few starts find the same optimum), and fewer
 draws; the false-alarm test in ``tests/monitor/test_calibrated_limits.py``
@@ -42,10 +49,12 @@ import numpy as np
 from ..errors import InputError
 from ..linalg.factor import Factor
 
-__all__ = ["SimulatedLaw", "simulate_law", "TAILS", "ASYMPTOTIC_CELLS", "ROBUST_STARTS", "LIMIT_SEED"]
+__all__ = ["SimulatedLaw", "simulate_law", "TAILS", "ASYMPTOTIC_CELLS", "SIM_CELLS", "ROBUST_STARTS", "LIMIT_SEED",
+           "simulated_always"]
 
 TAILS = tuple(float(t) for t in np.geomspace(0.5, 1e-4, 25))  #: tail probabilities of the table
 ASYMPTOTIC_CELLS = 200_000  #: above m * p reference cells the sample law with m rows serves
+SIM_CELLS = 10_000_000  #: shrinkage above ASYMPTOTIC_CELLS: draws x m x p kept near this
 ROBUST_STARTS = 10  #: random starts of the simulated robust refits
 LIMIT_SEED = 20050419  #: default seed of the simulation (fixed: limits are reproducible)
 _DRAWS = {"sample": 200, "shrinkage": 200, "robust": 40}
@@ -188,6 +197,8 @@ def simulate_law(estimator: str, corr_lower: np.ndarray, m: int, *, settings: di
         draws = _DRAWS.get(estimator, 200)
         if estimator == "robust":  # a robust refit costs ~ m p^2 per C-step: fewer draws for large m
             draws = max(20, min(draws, 8_000 // max(m, 1)))
+        elif m * p > ASYMPTOTIC_CELLS:
+            draws = max(20, min(draws, SIM_CELLS // (m * p)))
     k = max(500, _FRESH_CELLS // p)
     rng = np.random.default_rng(seed)
     names = [f"x{j}" for j in range(p)]
@@ -215,6 +226,11 @@ def simulate_law(estimator: str, corr_lower: np.ndarray, m: int, *, settings: di
     return SimulatedLaw(p=p, m=int(m), procedure=what, tails=tuple(float(t) for t in tails),
                         quantiles=tuple(float(v) for v in qs), mc_se=tuple(float(v) for v in se),
                         draws=draws, rows_per_draw=k, seed=seed, flagged_mean=fm, flagged_se=fse)
+
+
+def simulated_always(estimator: str | None) -> bool:
+    """True for the estimators whose limit is simulated whatever m * p (shrinkage; see the module notes)."""
+    return estimator == "shrinkage"
 
 
 def correlation_lower(factor: Factor) -> np.ndarray:

@@ -21,7 +21,7 @@ from .._warn import warn
 from ..errors import ConditioningWarning, InputError, WeakScreenWarning
 from ..io.tables import select_columns
 from ..linalg.factor import Factor
-from .calibrated import ASYMPTOTIC_CELLS, SimulatedLaw
+from .calibrated import ASYMPTOTIC_CELLS, SimulatedLaw, simulated_always
 from .contributions import chain_terms, score_terms_into, whitened_and_drop
 from .fdr import add_fdr
 from .limits import check_alpha, check_phase, screen_check, t2_law, t2_limit, t2_pvalue
@@ -122,6 +122,8 @@ class Scorer:
         low = self.factor.lower
         self.sd = np.sqrt(np.einsum("ij,ij->i", low, low))
         self._cache: dict[bytes, _SubModel] = {}
+        # rows the fit saw (a robust fit's n counts only the rows it kept): the asymptotic switch's m
+        self._m_fit = int((getattr(baseline, "params", None) or {}).get("n_total", self.m or 0))
         ws = getattr(baseline, "weight_sum", None)
         self.weight_sum = None if ws is None else float(ws)
         self.limit_basis = self._limit_basis()
@@ -132,28 +134,39 @@ class Scorer:
             warn(WeakScreenWarning, self.weak["message"])
 
     def _limit_basis(self) -> str:
+        """The law of the full-row limit, led by its kind (exact / simulated / asymptotic / approximate /
+        known-parameter); the kind alone is ``self.law_kind``."""
         if self.law is not None:
+            self.law_kind = "simulated"
             part = ""
             if self.m is not None and self.m > self.p:
                 part = "; rows with missing sensors: " + t2_law("new", self.p, self.m).replace(
                     f"{self.p}", "k") + " (the sample estimator's law with k observed, approximate here)"
-            return self.law.describe(self.alpha) + part
+            return "simulated: " + self.law.describe(self.alpha) + part
         law = t2_law(self.phase, self.p, self.m)
         est = self.estimator
         weighted = self.weight_sum is not None and self.m is not None \
             and abs(self.weight_sum - self.m) > 1e-9 * self.m
-        if self.phase == "new" and (est not in (None, "sample") or weighted) and \
-                self.m is not None and self.m * self.p <= ASYMPTOTIC_CELLS:
-            return (f"{law}; approximate here: this {est} baseline carries no simulated law (a model file "
+        other = est not in (None, "sample") or weighted
+        if self.phase == "known":
+            self.law_kind = "known-parameter"
+            return f"known-parameter: {law}"
+        if self.phase == "new" and other and self.m is not None and \
+                (self._m_fit * self.p <= ASYMPTOTIC_CELLS or simulated_always(est)):
+            self.law_kind = "approximate"
+            return (f"approximate: {law}; this {est} baseline carries no simulated law (a model file "
                     "older than whiten.baseline/3?); refit it for a limit that holds")
-        if self.phase == "new" and (est not in (None, "sample") or weighted):
-            return (f"{law}; asymptotic here: with m p = {self.m * self.p} > {ASYMPTOTIC_CELLS} reference cells "
+        if self.phase == "new" and other:
+            self.law_kind = "asymptotic"
+            return (f"asymptotic: {law}; with m p = {self._m_fit * self.p} > {ASYMPTOTIC_CELLS} reference cells "
                     f"the extra estimation error of this {'weighted ' if weighted else ''}{est} baseline is "
                     "O(p/m), so the sample estimator's exact law serves")
-        if self.phase == "reference" and (est not in (None, "sample") or weighted):
-            return (f"{law}; approximate here: the law holds for the plain unweighted sample estimate, "
+        if self.phase == "reference" and other:
+            self.law_kind = "approximate"
+            return (f"approximate: {law}; the law holds for the plain unweighted sample estimate, "
                     f"this baseline uses estimator {est!r}{' with row weights' if weighted else ''}")
-        return law
+        self.law_kind = "exact"
+        return f"exact: {law}"
 
     def _law_values(self, d2: np.ndarray, nobs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """p-values and limits per row: the simulated law for complete rows when there is one."""
@@ -302,6 +315,6 @@ class Scorer:
             "alpha": self.alpha, "phase": self.phase, "reference_rows": self.m, "sensors": list(self.columns),
             "order": list(self.order), "fdr": fdr, "limit_basis": self.limit_basis,
             "estimator": self.estimator, "digits_trusted": h.digits_trusted, "jitter": h.jitter,
-            "limit_law": "simulated" if self.law is not None else "exact or asymptotic (see limit_basis)",
+            "limit_law": self.law_kind,
             "weak_screen": None if self.weak is None else {k: v for k, v in self.weak.items() if k != "message"},
         }

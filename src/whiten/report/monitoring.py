@@ -118,8 +118,18 @@ def _redundancy(rep: Report, baseline: Any) -> None:
 def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
     basis = attrs.get("limit_basis")
     if basis:
-        rep.health("Alarm limit", f"Exact law used for p-values and limits: {basis}.",
-                   "note" if "approximate" in str(basis) else "good")
+        kind = str(attrs.get("limit_law") or str(basis).split(":", 1)[0])
+        words = {"exact": "The exact law of the estimator is used", "simulated": "The law is simulated (parametric "
+                 "bootstrap of the whole fit)", "asymptotic": "An asymptotic law is used (many reference rows per "
+                 "sensor)", "approximate": "An approximate law is used", "known-parameter": "The parameters are "
+                 "taken as known (chi-square law)"}.get(kind, "Law used")
+        weak = attrs.get("weak_screen")
+        extra = "" if not weak else (f" Weak screen: the limit {format_number(weak['limit'], 4)} is "
+                                     f"{format_number(weak['ratio'], 3)} times the chi-square limit "
+                                     f"{format_number(weak['chi2_limit'], 4)}; about {weak['rows_needed']} reference "
+                                     "rows would bring it within 10%.")
+        rep.health("Alarm limit", f"{words} for p-values and limits ({kind}). {basis}.{extra}",
+                   "note" if kind == "approximate" or weak else "good")
     h = getattr(baseline, "health", None) if baseline is not None else None
     if h is None and baseline is not None and hasattr(baseline, "factor"):
         h = baseline.factor.health
