@@ -10,6 +10,9 @@ from scipy import stats
 import whiten
 from whiten.estimate.robust import MCD_SEED, consistency_factor
 
+# small reference sets on purpose: the weak-screen notice is tested in tests/estimate/test_weak_screen_law.py
+pytestmark = pytest.mark.filterwarnings("ignore::whiten.WeakScreenWarning")
+
 CovDetMCD = pytest.importorskip("statsmodels.robust.covariance").CovDetMCD
 
 

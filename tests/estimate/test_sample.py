@@ -214,6 +214,9 @@ def test_input_not_modified_and_float32_accepted():
 from hypothesis import given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 
+# small reference sets on purpose: the weak-screen notice is tested in tests/estimate/test_weak_screen_law.py
+pytestmark = pytest.mark.filterwarnings("ignore::whiten.WeakScreenWarning")
+
 
 @settings(max_examples=25, deadline=None)
 @given(cuts=st.lists(st.integers(1, 299), max_size=8, unique=True), kind=st.sampled_from(["gram", "qr"]),

@@ -17,6 +17,9 @@ import pytest
 
 import whiten
 
+# small reference sets on purpose: the weak-screen notice is tested in tests/estimate/test_weak_screen_law.py
+pytestmark = pytest.mark.filterwarnings("ignore::whiten.WeakScreenWarning")
+
 P = 6
 
 

@@ -12,6 +12,9 @@ from whiten.monitor import Scorer, score, t2_limit, t2_pvalue
 
 from .conftest import correlated_cov, standin  # numpy sample estimate: what the exact laws assume
 
+# small reference sets on purpose: the weak-screen notice is tested in tests/estimate/test_weak_screen_law.py
+pytestmark = pytest.mark.filterwarnings("ignore::whiten.WeakScreenWarning")
+
 
 def _null_new_pvalues(reps: int, m: int, p: int, seed: int, phase: str = "new") -> np.ndarray:
     """p-values of one fresh row per independently fitted baseline (so draws are independent)."""

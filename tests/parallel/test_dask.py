@@ -63,6 +63,25 @@ def test_baseline_from_dask_array_and_frame_equals_in_memory(client, plant):
         assert b.health.n_chunks > 1
 
 
+def test_units_do_not_matter_on_dask(client, plant):
+    # A Mahalanobis distance is invariant to a positive rescaling and a shift of any sensor (affine
+    # equivariance of the sample mean and covariance; Anderson, 2003, from memory): a baseline fitted on
+    # the dask engine from re-expressed readings scores re-expressed new rows exactly as the in-memory
+    # baseline of the original units scores the originals, for both numerical routes.
+    # shifts of 100 spreads: a far larger shift would round away digits of the re-expressed readings
+    # themselves (a property of the inputs, not of the estimator)
+    scale = np.array([1e-6, 1e3, 1e6, 0.01, 1.0])
+    shift = np.array([100.0, -100.0, 50.0, 0.0, 100.0]) * scale * plant.std().to_numpy()
+    new = plant.iloc[:300] + np.array([0.5, -1.0, 2.0, 0.0, 0.3])
+    ref = whiten.monitor.score(whiten.fit_baseline(plant), new)["d2"].to_numpy()
+    moved = plant * scale + shift
+    for method in ("gram", "tsqr"):
+        b = whiten.fit_baseline(dd.from_pandas(moved, npartitions=4), method=method)
+        assert b.params["engine"] == "dask"
+        got = whiten.monitor.score(b, new * scale + shift)["d2"].to_numpy()
+        assert _rel(got, ref) < 1e-10, method
+
+
 def test_weighted_baseline_on_dask_equals_in_memory_and_numpy_fweights(client, plant):
     # reference: numpy.cov with integer frequency weights (divisor sum(w) - 1), and the in-memory fit
     rng = np.random.default_rng(5)
