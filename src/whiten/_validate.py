@@ -22,7 +22,17 @@ __all__ = [
     "check_names",
     "first_nonfinite",
     "describe_position",
+    "scale_problems",
+    "check_scale",
+    "SCALE_BIG",
+    "SCALE_SMALL",
 ]
+
+#: Magnitudes whose squares stay comfortably inside float64: beyond SCALE_BIG a sum of squares
+#: overflows, and a spread below SCALE_SMALL squares to (almost) nothing.
+SCALE_BIG = 1e150
+SCALE_SMALL = 1e-150
+_EPS = float(np.finfo(np.float64).eps)
 
 
 def _is_frame(obj: Any) -> bool:
@@ -86,6 +96,19 @@ def _frame_to_array(df, name: str) -> tuple[np.ndarray, list[str], Any]:
     return values, names, df.index
 
 
+def _as_ndarray(data: Any, name: str) -> np.ndarray:
+    """``np.asarray(data)``, with a ragged nested list named instead of numpy's ValueError."""
+    try:
+        return np.asarray(data)
+    except ValueError:
+        lengths = []
+        if isinstance(data, (list, tuple)):
+            lengths = sorted({len(r) for r in data if isinstance(r, (list, tuple, np.ndarray))})
+        got = f" (rows of length {', '.join(map(str, lengths))})" if len(lengths) > 1 else ""
+        raise InputError(f"{name}: the nested lists are ragged{got}; every row must have the same "
+                         "number of entries") from None
+
+
 def _coerce_numeric(s):
     import pandas as pd
 
@@ -145,7 +168,7 @@ def as_float_array(
         except (TypeError, ValueError):
             raise InputError(f"{name}: series {getattr(data, 'name', '')!r} is not numeric") from None
     else:
-        arr = np.asarray(data)
+        arr = _as_ndarray(data, name)
         if arr.dtype.kind == "c":
             raise InputError(f"{name}: complex values are not supported; whiten works with real numbers")
         if arr.dtype.kind not in "biuf":
@@ -180,6 +203,49 @@ def nonfinite_error(v2: np.ndarray, r: int, c: int, names, index, *, name: str, 
         where = describe_position(r, c, names, index)
     hint = "" if allow_nan else " (missing values are not allowed here)"
     return InputError(f"{name}: {where} is {what}{hint}; every value must be a finite number")
+
+
+def _power_of_ten(x: float) -> str:
+    return f"1e{int(np.floor(np.log10(x))):+d}"
+
+
+def scale_problems(lo: np.ndarray, hi: np.ndarray, names: Sequence[str] | None, *,
+                   small: bool = True) -> str | None:
+    """The one message for every column whose scale float64 arithmetic cannot carry, or None.
+
+    ``lo`` and ``hi`` are each column's smallest and largest value. A column is
+    too large when a value exceeds :data:`SCALE_BIG` in magnitude (its squares
+    overflow); with ``small``, it is too small when it varies by less than
+    :data:`SCALE_SMALL` while that variation is more than rounding of its level
+    (its squared deviations underflow). The test depends only on the data,
+    never on an absolute threshold for "constant".
+    """
+    lab = (lambda j: repr(str(names[j]))) if names is not None else (lambda j: str(j))
+    with np.errstate(over="ignore", invalid="ignore"):
+        level = np.maximum(np.abs(lo), np.abs(hi))
+        spread = hi - lo
+    parts = []
+    for j in range(level.shape[0]):
+        if level[j] > SCALE_BIG:
+            parts.append(f"column {lab(j)} reaches {level[j]:.3g} in magnitude, beyond the ~{SCALE_BIG:g} "
+                         f"whose squares float64 can hold: divide it by {_power_of_ten(level[j])} "
+                         "(other units)")
+        elif small and 0 < spread[j] < SCALE_SMALL and spread[j] > 8 * _EPS * level[j]:
+            parts.append(f"column {lab(j)} varies, but only by {spread[j]:.3g}, below the ~{SCALE_SMALL:g} "
+                         f"whose squares float64 can hold: multiply it by {_power_of_ten(1 / spread[j])} "
+                         "(other units)")
+    if not parts:
+        return None
+    return "a scale problem, not bad data: " + "; ".join(parts) + "; then fit again"
+
+
+def check_scale(values: np.ndarray, names: Sequence[str] | None, *, name: str, small: bool = False) -> None:
+    """Raise the :func:`scale_problems` message for the columns of a finite 2-D array, if any."""
+    if values.size == 0:
+        return
+    msg = scale_problems(values.min(axis=0), values.max(axis=0), names, small=small)
+    if msg is not None:
+        raise InputError(f"{name}: {msg}")
 
 
 def check_names(given: Sequence[str] | None, expected: Sequence[str] | None, *, name: str = "data") -> None:

@@ -22,6 +22,16 @@ from whiten.errors import InputError, JitterWarning, ModelFileError
 
 from .conftest import snapshot
 
+
+def _rows(fmt: str) -> str:
+    return "".join(fmt.format(u=(i * 0.37) % 1 - 0.5, v=(i * 0.61) % 1 - 0.5, w=(i * 0.23) % 1) + "\n"
+                   for i in range(1, 13))
+
+
+BIG160 = "y,x1,x2\n" + _rows("{u:.3f},{v:.4f}e160,{w:.3f}")
+BIG300 = "a,b,c\n" + _rows("{u:.3f},{v:.4f}e300,{w:.3f}")
+SMALL300 = "a,b,c\n" + _rows("{u:.3f},{v:.4f}e-300,{w:.3f}")
+CONST_DUP = "a,k,b,a2\n" + _rows("{u:.3f},1,{w:.3f},{u:.3f}")
 GOOD = "a,b,c\n0.1,0.2,0.3\n-0.4,0.5,0.1\n0.3,-0.2,0.4\n"
 DEEP = '{"format": "whiten.baseline/2", "payload": ' + "[" * 5000 + "]" * 5000 + ', "sha256": "0"}'
 MODEL = "<model>"  # placeholder: the catalogue's model file
@@ -170,6 +180,16 @@ CLI = [
     ("regress-level-two", {"d.csv": "y,x\n1,2\n2,3\n3,5\n"}, "regress d.csv --response y -o f.json --level 2",
      1, ["--level"], []),
     ("regress-missing-response", {"d.csv": "y,x\n1,2\n"}, "regress d.csv --response z -o f.json", 1, ["'z'"], []),
+    ("regress-1e160-column", {"d.csv": BIG160}, "regress d.csv --response y -o f.json",
+     1, ["scale problem", "'x1'", "divide it by"], []),
+    ("regress-1e160-response", {"d.csv": BIG160.replace("y,x1", "x1,y")}, "regress d.csv --response y -o f.json",
+     1, ["scale problem", "'y'"], []),
+    ("baseline-1e300-column", {"d.csv": BIG300}, "baseline d.csv -o b.json", 1, ["scale problem", "'b'"], []),
+    ("baseline-1e-300-column", {"d.csv": SMALL300}, "baseline d.csv -o b.json",
+     1, ["scale problem", "'b'", "varies"], []),
+    ("baseline-constant-and-duplicate", {"d.csv": CONST_DUP}, "baseline d.csv -o b.json",
+     1, ["constant", "'k'", "linearly dependent", "a2"], []),
+    ("baseline-one-row", {"d.csv": "a,b,c\n1,2,3\n"}, "baseline d.csv -o b.json", 1, ["1 complete row"], []),
     # -- loglik
     ("loglik-inf", {"d.csv": "a,b,c\n1,2,3\ninf,2,3\n"}, "loglik d.csv --baseline m.json -o l.csv",
      1, ["d.csv", "line 3", "'a'"], []),
@@ -286,6 +306,26 @@ API = [
     ("load-model-folder", lambda t: whiten.load_baseline(t), ModelFileError, ["folder"]),
     ("load-model-binary", lambda t: (t / "x.json").write_bytes(b"\xff\xfe\x00") and whiten.load_baseline(t / "x.json"),
      ModelFileError, ["not text"]),
+    ("ragged-fit-baseline", lambda t: whiten.fit_baseline([[1, 2], [3]]), InputError, ["ragged", "data"]),
+    ("ragged-logpdf", lambda t: whiten.Gaussian([0, 0], np.eye(2)).logpdf([[1, 2], [3]]), InputError, ["ragged"]),
+    ("ragged-fit-linear", lambda t: whiten.fit_linear([[1, 2], [3]], [1, 2]), InputError, ["ragged", "X"]),
+    ("ragged-fit-linear-y", lambda t: whiten.fit_linear(np.ones((2, 1)), [[1], [2, 3]]), InputError, ["ragged", "y"]),
+    ("ragged-gaussian-mean", lambda t: whiten.Gaussian([[0], [0, 1]], np.eye(2)), InputError, ["ragged", "mean"]),
+    ("ragged-cholesky", lambda t: whiten.cholesky([[1.0, 0.0], [0.0]]), InputError, ["ragged"]),
+    ("fit-linear-1e160", lambda t: whiten.fit_linear(np.c_[np.arange(9.0), np.arange(9.0) ** 2 * 1e160],
+                                                      np.arange(9.0)), InputError, ["scale problem", "'x1'"]),
+    ("baseline-1e300", lambda t: whiten.fit_baseline(np.c_[np.arange(9.0), np.sin(np.arange(9.0)) * 1e300]),
+     InputError, ["scale problem", "'x1'", "divide"]),
+    ("baseline-1e-300-varies", lambda t: whiten.fit_baseline(np.c_[np.arange(9.0), np.sin(np.arange(9.0)) * 1e-300]),
+     InputError, ["scale problem", "varies", "multiply"]),
+    ("baseline-constant-to-rounding", lambda t: whiten.fit_baseline(
+        np.c_[np.arange(9.0), 1 + np.sin(np.arange(9.0)) * 1e-300]), InputError, ["constant", "'x1'"]),
+    ("baseline-zero-weights", lambda t: whiten.fit_baseline(np.c_[np.arange(9.0), np.sin(np.arange(9.0))],
+                                                            weights=np.zeros(9)), InputError, ["weight 0"]),
+    ("baseline-one-row-no-weights", lambda t: whiten.fit_baseline([[1.0, 2.0]]), InputError, ["1 complete row"]),
+    ("baseline-constant-and-duplicate", lambda t: whiten.fit_baseline(
+        np.c_[np.arange(9.0), np.ones(9), np.sin(np.arange(9.0)), np.arange(9.0) * 2]),
+     InputError, ["constant", "'x1'", "linearly dependent", "x3"]),
     ("atomic-existing", lambda t: whiten.io.atomic.write_text(t / "m.json", "x"), InputError, ["already exists"]),
 ]
 

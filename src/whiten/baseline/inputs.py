@@ -120,7 +120,7 @@ class Source:
                              "take labels from")
         if self.weight_column is not None:
             raise InputError("weights: a column name works with DataFrame or file input; pass an array of weights")
-        arr = np.asarray(data)
+        arr = _validate._as_ndarray(data, "data")
         if arr.ndim == 2 and arr.dtype.kind in "biuf":
             # no copy for float64 input; infinities are caught block by block by the cleaner,
             # which saves a full pass (and an N x p mask) over a large array

@@ -62,6 +62,36 @@ def save_payload(payload: dict, path: str | os.PathLike, *, force: bool = False)
     return write_model(path, MODEL_FORMAT, payload, force=force)
 
 
+#: the largest row count a model file may state: every count up to it is exact in float64
+MAX_ROWS = 2**53
+
+
+def _row_count(value: Any, bad) -> int:
+    """The ``n`` of a payload: a whole number of rows from 1 to :data:`MAX_ROWS`."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise bad(f"n (the number of reference rows) must be a whole number, got {value!r:.40}")
+    if isinstance(value, float) and not (np.isfinite(value) and value == int(value)):
+        raise bad(f"n (the number of reference rows) must be a whole number, got {value!r:.40}")
+    n = int(value)
+    if not 1 <= n <= MAX_ROWS:
+        shown = str(n) if len(str(n)) <= 20 else f"a {len(str(n))}-digit number"
+        raise bad(f"n (the number of reference rows) is {shown}, outside 1 to 2**53; the file was edited or "
+                  "damaged: fit the baseline again")
+    return n
+
+
+def _weight_sum(value: Any, n: int, bad) -> float:
+    """The ``weight_sum`` of a payload: a finite positive number."""
+    try:
+        w = float(value)
+    except (TypeError, ValueError, OverflowError):
+        raise bad(f"weight_sum must be a number, got {value!r:.40}") from None
+    if not (np.isfinite(w) and 0 < w <= 1e300):
+        raise bad(f"weight_sum is {w:g}, not a finite positive number; the file was edited or damaged: fit the "
+                  "baseline again")
+    return w
+
+
 def read_payload(path: str | os.PathLike) -> dict:
     """The keyword arguments of ``Baseline(...)`` read back from a model file, checked.
 
@@ -99,7 +129,7 @@ def read_payload(path: str | os.PathLike) -> dict:
         if hd["gram_digits_lost"] is not None:
             hd["gram_digits_lost"] = from_json_number(hd["gram_digits_lost"])
         health = BaselineHealth(**hd)
-        n = int(payload["n"])
+        n = _row_count(payload["n"], bad)
         est = str(payload["estimator"])
         law = payload.get("limit_law")
         law = None if law is None else SimulatedLaw.from_dict(law)
@@ -119,5 +149,6 @@ def read_payload(path: str | os.PathLike) -> dict:
         raise bad(f"the factor is not a valid Cholesky factor ({exc})") from None
     f = Factor(low, health_of(low, health.jitter, health.jitter_relative, f0.health.method), cols)
     return dict(mean=mean, factor=f, n=n, columns=cols, estimator=est, params=dict(payload.get("params") or {}),
-                health=health, weight_sum=float(payload.get("weight_sum", n)), created_utc=payload.get("created_utc"),
+                health=health, weight_sum=_weight_sum(payload.get("weight_sum", n), n, bad),
+                created_utc=payload.get("created_utc"),
                 limit_law=law)

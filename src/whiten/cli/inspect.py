@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
+import math
 import warnings
 
 import numpy as np
@@ -42,6 +44,44 @@ def correlation(b) -> np.ndarray:
     return u @ u.T
 
 
+class _WithHealth:
+    """The baseline seen with another health record (everything else passed through)."""
+
+    def __init__(self, b, health):
+        self._b = b
+        self.health = health
+
+    def __getattr__(self, name):
+        return getattr(self._b, name)
+
+
+def recomputed_health(b):
+    """The baseline's health with the condition recomputed from the stored factor, and a note if they disagree.
+
+    The condition fields of a model file's health block are only a record; what a
+    distance loses is decided by the factor itself, so that is what is shown.
+    """
+    fh = b.factor.health
+    h = b.health
+    new = dataclasses.replace(h, rcond=float(fh.rcond), rcond_scaled=float(fh.rcond_scaled),
+                              digits_lost=float(fh.digits_lost))
+
+    def differs(a: float, c: float) -> bool:
+        if not (math.isfinite(a) and math.isfinite(c)):
+            return not (math.isnan(a) and math.isnan(c)) and a != c
+        return abs(a - c) > 0.05 + 1e-6 * abs(c)
+
+    if differs(h.digits_lost, new.digits_lost) or differs(
+            math.log10(max(h.rcond_scaled, 1e-320)) if h.rcond_scaled > 0 else -math.inf,
+            math.log10(max(new.rcond_scaled, 1e-320)) if new.rcond_scaled > 0 else -math.inf):
+        note = (f"note: the file's stored health block disagrees: it says about {h.digits_lost:.1f} digits lost "
+                f"(rcond {h.rcond_scaled:.3g}), the stored factor gives {new.digits_lost:.1f} "
+                f"(rcond {new.rcond_scaled:.3g}); shown above is the factor's. Fit the baseline again to "
+                "refresh the file")
+        return new, note
+    return new, None
+
+
 def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
     from .. import pivoted_cholesky
     from ..errors import InputError
@@ -52,7 +92,10 @@ def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
     out = []
     if b.created_utc:
         out.append(f"written: {b.created_utc}")
-    out += health_lines(b)
+    recomputed, note = recomputed_health(b)
+    out += health_lines(_WithHealth(b, recomputed))
+    if note:
+        out.append(note)
     corr = correlation(b)
     rep = pivoted_cholesky(corr, tol=tol, columns=b.columns)
     if rep.full_rank:

@@ -25,6 +25,7 @@ import numpy as np
 
 from .._numerics import EPS
 from .._settings import current
+from .._validate import scale_problems
 from .._warn import warn
 from ..errors import ConditioningWarning, InputError, NotPositiveDefiniteError
 from ..linalg.cholesky import cholesky
@@ -66,9 +67,44 @@ class ScatterFit:
     passes: int
 
 
-def no_rows_error(names: Sequence[str]) -> InputError:
+def no_rows_error(names: Sequence[str], watch: _Watch | None = None) -> InputError:
+    if watch is not None and watch.rows and watch.weighted and watch.positive == 0:
+        return InputError(
+            f"weights: every one of the {watch.rows} complete row(s) has weight 0, so no row counts in the fit; "
+            "give at least two rows a positive weight")
     return InputError(
         f"no complete rows to fit (columns {list(names)}); check the missing values or the column selection")
+
+
+class _Watch:
+    """Counts the rows and weights of the blocks passing by, and each column's smallest and largest value.
+
+    The ranges make the scale checks scale-free: they are read from the data,
+    not from a scatter matrix whose squares may have overflowed or underflowed.
+    """
+
+    def __init__(self, blocks: Iterator[Block]):
+        self._blocks = blocks
+        self.rows = 0
+        self.positive = 0
+        self.weighted = False
+        self.lo: np.ndarray | None = None
+        self.hi: np.ndarray | None = None
+
+    def __iter__(self) -> Iterator[Block]:
+        for blk in self._blocks:
+            m = blk.values.shape[0]
+            self.rows += m
+            if blk.weights is not None:
+                self.weighted = True
+                self.positive += int(np.count_nonzero(blk.weights > 0))
+            else:
+                self.positive += m
+            if m:
+                lo, hi = blk.values.min(axis=0), blk.values.max(axis=0)
+                self.lo = lo if self.lo is None else np.minimum(self.lo, lo)
+                self.hi = hi if self.hi is None else np.maximum(self.hi, hi)
+            yield blk
 
 
 def _cov_divisor(state: ScatterState) -> float:
@@ -81,15 +117,16 @@ def check_rows(state: ScatterState, names: Sequence[str]) -> None:
     p = state.dim
     if state.n == 0:
         raise no_rows_error(names)
+    if state.n <= p:
+        raise InputError(
+            f"{state.n} complete row(s) for {p} column{'s' if p != 1 else ''}: the sample covariance of "
+            "n <= p rows is singular "
+            f"(rank at most n - 1 = {state.n - 1}), so no Mahalanobis distance exists. Use "
+            "estimator='shrinkage', which is defined for n < p, or collect more rows than columns")
     if state.wsum <= 1.0:
         raise InputError(
             f"the weights sum to {state.wsum:.6g}; frequency weights (a weight of 3 counts as three rows) "
             "must sum to more than 1 so that sum(w) - 1 > 0. Scale them to counts")
-    if state.n <= p:
-        raise InputError(
-            f"{state.n} complete row(s) for {p} columns: the sample covariance of n <= p rows is singular "
-            f"(rank at most n - 1 = {state.n - 1}), so no Mahalanobis distance exists. Use "
-            "estimator='shrinkage', which is defined for n < p, or collect more rows than columns")
 
 
 def check_scatter(state: ScatterState, names: Sequence[str], *, dependent: bool = True) -> None:
@@ -100,20 +137,25 @@ def check_scatter(state: ScatterState, names: Sequence[str], *, dependent: bool 
     # a constant column centres to exact zeros; allow rounding of its level
     tiny = state.wsum * (8 * EPS * np.maximum(np.abs(loc), np.finfo(np.float64).tiny)) ** 2
     const = [j for j in range(state.dim) if d[j] <= tiny[j]]
+    problems: list[str] = []
+    leave: list[str] = []
     if const:
         desc = ", ".join(f"{names[j]!r} (every row holds {loc[j]:.10g})" for j in const)
-        raise InputError(
-            f"constant column(s) {desc}: a Gaussian baseline needs spread in every column. "
-            "Leave them out with columns=[...]")
-    if not dependent:
-        return
-    rep = pivoted_cholesky(s, columns=list(names))
-    if not rep.full_rank:
-        parts = "; ".join(rep.describe())
-        raise InputError(
-            f"columns are linearly dependent (numerical rank {rep.rank} of {rep.dim}): {parts}. "
-            f"Leave out {', '.join(repr(c) for c in rep.dependent)} with columns=[...], "
-            "or use estimator='shrinkage'")
+        problems.append(f"constant column(s) {desc}: a Gaussian baseline needs spread in every column")
+        leave += [str(names[j]) for j in const]
+    rest = [j for j in range(state.dim) if j not in const]
+    if dependent and len(rest) > 1:
+        # the dependencies among the columns that vary, so one message names every troublesome column
+        rep = pivoted_cholesky(s[np.ix_(rest, rest)], columns=[names[j] for j in rest])
+        if not rep.full_rank:
+            parts = "; ".join(rep.describe())
+            problems.append(f"columns are linearly dependent (numerical rank {rep.rank} of {rep.dim} "
+                            f"among the columns that vary): {parts}")
+            leave += [str(c) for c in rep.dependent]
+    if problems:
+        alt = ", or use estimator='shrinkage'" if len(leave) > len(const) else ""
+        raise InputError(f"{'; '.join(problems)}. Leave out {', '.join(repr(c) for c in leave)} "
+                         f"with columns=[...]{alt}")
 
 
 def factor_from_r(r: np.ndarray, scale: float, names: Sequence[str] | None, method: str = "tsqr") -> Factor:
@@ -174,16 +216,19 @@ def fit_scatter(blocks: Callable[[], Iterator[Block]], names: Sequence[str], *, 
     """
     if method not in METHODS:
         raise InputError(f"method: expected one of {METHODS}, got {method!r}")
-    if method == "tsqr" or (method == "auto" and not reiterable):
-        st, nb = accumulate(blocks(), "qr")
-        if st is None or st.n == 0:
-            raise no_rows_error(names)
-        check_rows(st, names)
-        return ScatterFit(st, "tsqr", None, None, nb, 1)
-    st, nb = accumulate(blocks(), "gram")
+    qr_first = method == "tsqr" or (method == "auto" and not reiterable)
+    watch = _Watch(blocks())
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+        st, nb = accumulate(iter(watch), "qr" if qr_first else "gram")
     if st is None or st.n == 0:
-        raise no_rows_error(names)
+        raise no_rows_error(names, watch)
+    if watch.lo is not None and watch.hi is not None:
+        bad = scale_problems(watch.lo, watch.hi, names)
+        if bad:
+            raise InputError(bad)
     check_rows(st, names)
+    if qr_first:
+        return ScatterFit(st, "tsqr", None, None, nb, 1)
     f, digits = gram_factor(st, names)
     if method == "gram" or digits <= current().gram_digits_max:
         return ScatterFit(st, "gram", digits, f, nb, 1)
