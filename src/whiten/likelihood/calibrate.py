@@ -29,6 +29,36 @@ from .results import CalibrationFit, JacobianHealth
 
 __all__ = ["calibrate"]
 
+
+def _stderr_error(r: np.ndarray, jw: np.ndarray, factor: Any, perm) -> float:
+    """Relative error of the computed standard errors (max over parameters) for the Jacobian as evaluated.
+
+    Same estimate as ``FitHealth.digits_stderr`` (docs/numerics.rst): the QR's backward error moves
+    ``C_kk = (R^-1 R^-T)_kk`` by about ``|dR| |C e_k|_1 / sqrt(C_kk)`` (unit columns). The factor and the
+    whitening ``L^-1 J`` are exact for some ``S + dS``, and then ``C_kk`` moves like a Gaussian quadratic
+    form with ``z_k = L^-T J_w C e_k`` (the estimate of ``whiten.likelihood.accuracy``, part B).
+    """
+    from ..linalg.sensitivity import chi2_sums
+
+    k = r.shape[1]
+    d = np.sqrt(np.einsum("ij,ij->j", r, r))
+    if not np.all(d > 0):
+        return math.inf
+    u = tri_solve(r / d[None, :], np.eye(k), trans=True)  # inverse-ok: bounds the reported digits only
+    c = u.T @ u
+    ckk = np.diag(c)
+    c_rel = 0.5 * EPS * np.sum(np.abs(c), axis=0) / np.sqrt(ckk)
+    if hasattr(factor, "solve_lower") and not (hasattr(factor, "variances") and factor.dim == 0):
+        try:
+            z = factor.solve_lower((jw[:, perm] / d[None, :]) @ c, trans=True)
+            root = math.sqrt(factor.dim)
+            c_rel = c_rel + (chi2_sums(factor, z.T, "factor") / root + root * ckk) * EPS / ckk
+        except (AttributeError, TypeError, ValueError):
+            c_rel = c_rel + EPS / max(factor.health.rcond_scaled, 1e-300)
+    else:
+        c_rel = c_rel + EPS / max(factor.health.rcond_scaled, 1e-300)
+    return float(np.max(0.5 * c_rel)) + 2 * EPS
+
 _LOG_2PI = math.log(2.0 * math.pi)
 
 
@@ -170,8 +200,12 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     stderr = np.sqrt(np.diag(theta_cov))
     p_value = float(stats.chi2.sf(chi2, dof)) if dof > 0 else math.nan
     loglik = -0.5 * (n * _LOG_2PI + factor.logdet() + chi2)
+    se_digits = math.nan   # not stated when rank deficient, nor with rescale=True (not calibrated)
+    if rank == k and not rescaled:
+        se_err = _stderr_error(r, jw, factor, perm)
+        se_digits = float(min(-math.log10(EPS), max(0.0, -math.log10(se_err))))
     health = JacobianHealth(cond, digits, rank, unidentified, factor.health,
-                            "analytic" if opts["jac"] is not None else "finite-difference")
+                            "analytic" if opts["jac"] is not None else "finite-difference", se_digits)
     residuals = yy - predict(model, theta, n)
     for a in (theta, theta_cov, stderr, residuals):
         a.setflags(write=False)

@@ -37,6 +37,14 @@ class JacobianHealth:
     jacobian : str
         ``"analytic"`` or ``"finite-difference"`` (central differences at the
         solution for ``theta_cov``).
+    digits_stderr : float
+        Estimated correct significant digits of ``stderr`` (the smallest over
+        parameters) for the Jacobian as evaluated at ``theta`` and the covariance as
+        given: the accuracy of the computation, checked against mpmath in
+        ``tests/accuracy/test_calibrate_digits.py``. The diagonal of ``theta_cov``
+        keeps about ``log10(2)`` = 0.3 digits fewer. It does not include the error
+        of the Jacobian itself (a user's ``jac``, or the truncation of finite
+        differences). NaN when rank deficient or ``rescaled``.
     """
 
     cond: float
@@ -45,6 +53,7 @@ class JacobianHealth:
     unidentified: tuple
     covariance: FactorHealth
     jacobian: str
+    digits_stderr: float = float("nan")
 
     def to_dict(self) -> dict:
         d = dataclasses.asdict(self)

@@ -320,18 +320,154 @@ def _min_digits(rel) -> float:
     return float(np.min(d)) if d.size else math.nan
 
 
+def _chi2_error(f_, z: np.ndarray, quad: np.ndarray) -> np.ndarray:
+    """Computed error of ``y^T S^-1 y`` per row of ``z = S^-1 y`` (the formula of part B, ``likelihood.accuracy``)."""
+    from ..linalg.sensitivity import chi2_sums
+
+    root = math.sqrt(f_.dim)
+    return (chi2_sums(f_, z, "factor") / root + root * quad) * EPS
+
+
+def _cov_parts(design, sol: Solution, kind: str):
+    """Per-coefficient first-order relative errors of ``C_kk = (R^-1 R^-T)_kk``, of the VIFs and of the rss.
+
+    Backward error ``dR`` of the QR (``eps |R|``, doubled for the rounding of ``sqrt(w)``) changes
+    ``C_kk`` by at most ``2 |dR| |C e_k| / sqrt(C_kk)`` relative (first order, ``C = R^-1 R^-T``).
+    With an error covariance, the factor and the whitening solves are exact for some ``S + dS``;
+    ``C_kk = y_k^T S^-1 y_k`` with ``y_k = A C e_k`` is then a quadratic form like the rss
+    ``r^T S^-1 r``, and both take the computed-error estimate of the quadratic form of a Gaussian
+    (``likelihood.accuracy``, calibrated in part B) with ``z_k = S^-1 y_k = L^-T Q R^-T e_k``.
+    A VIF is the ratio ``C_jj / C'_jj`` (``C'`` of the design ``[1, x_j]`` alone): the two move
+    together under ``dS`` and the difference of the two relative changes is bounded by
+    ``|zh_j - zh'_j|^T |L||L|^T |zh_j + zh'_j|`` (``zh = z / sqrt(C)``, the same scale as part B).
+    """
+    p = len(sol.cols)
+    u = tri_solve(sol.r, np.eye(p), trans=True)   # inverse-ok: columns R^-T e_k bound reported digits only
+    c = u.T @ u
+    ckk = np.diag(c)
+    nr = float(np.linalg.norm(sol.r))
+    wf = 1.5 if kind == "weights" else 1.0   # sqrt(w) and the product: 2u per entry beside the QR
+    with np.errstate(divide="ignore", invalid="ignore"):
+        c_rel = 0.5 * wf * EPS * np.sum(np.abs(c), axis=0) / np.sqrt(ckk)
+    vif_rel = c_rel.copy()
+    rss_rel_cov = 0.0
+    se_cov = None
+    if kind == "matrix" and sol.q is not None and _in_memory(design):
+        f_ = design.factor
+        z = f_.solve_lower(sol.q @ u, trans=True)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cov_k = _chi2_error(f_, z.T, ckk) / ckk
+        c_base = c_rel
+        c_rel = c_rel + cov_k
+        vif_rel = vif_rel + cov_k
+        v = f_.solve_lower(sol.wresid, trans=True)
+        rw = float(sol.wresid @ sol.wresid)
+        rss_rel_cov = float(_chi2_error(f_, v[None, :], np.array([rw]))[0]) / rw if rw > 0 else math.inf
+        if rw > 0:
+            # se_k = sqrt(rss C_kk / dof): under dS the two move as -vh^T dS vh and -zh^T dS zh, and a
+            # change of the scale of S cancels; first order 0.5 (vh - zh)^T dS (vh + zh)
+            from ..linalg.sensitivity import abs_cov_matvec
+
+            vh = (v / math.sqrt(rw))[None, :]
+            zt = (z / np.sqrt(ckk)[None, :]).T
+            with np.errstate(invalid="ignore"):
+                bil_se = np.einsum("ij,ij->i", np.abs(vh - zt), abs_cov_matvec(f_, vh + zt, "factor"))
+            se_cov = 0.5 * EPS * bil_se / math.sqrt(f_.dim) + math.sqrt(f_.dim) * EPS
+        if design.intercept and sol.cols[0] == 0 and p > 1:
+            r0 = sol.r[:, 0]
+            g00 = float(r0 @ r0)
+            cols = []
+            for k in range(1, p):
+                rk = sol.r[:, k]
+                g0k, gkk = float(r0 @ rk), float(rk @ rk)
+                det = g00 * gkk - g0k * g0k
+                cols.append((g00 * rk - g0k * r0) / math.sqrt(g00 * det) if det > 0 else np.full(p, np.nan))
+            zp = f_.solve_lower(sol.q @ np.column_stack(cols), trans=True)
+            zh = z[:, 1:] / np.sqrt(ckk[1:])[None, :]
+            from ..linalg.sensitivity import abs_cov_matvec
+
+            dm, sp = (zh - zp).T, (zh + zp).T
+            with np.errstate(invalid="ignore"):
+                bil = np.einsum("ij,ij->i", np.abs(dm), abs_cov_matvec(f_, sp, "factor"))
+                vif_rel[1:] = vif_rel[1:] - cov_k[1:] + EPS * bil / math.sqrt(f_.dim)
+    elif kind == "matrix":
+        cs = design.factor.health.rcond_scaled
+        c_rel = c_rel + EPS * (1.0 / cs if cs > 0 else math.inf)
+        vif_rel = c_rel
+        rss_rel_cov = EPS * (1.0 / cs if cs > 0 else math.inf)
+    if se_cov is not None:
+        c_rel = c_base   # the covariance part of se is stated jointly (se_cov)
+    return c_rel, vif_rel, rss_rel_cov, se_cov, nr, ckk, c
+
+
+def _logdet_error(design, kind: str, n: int) -> float:
+    """Absolute error of the log-determinant term of the log-likelihood (computation, first order)."""
+    if kind == "none":
+        return 0.0
+    if kind == "weights":
+        return 2 * EPS * (n + abs(2 * design.sum_log_sqrt_w))
+    from ..likelihood.accuracy import _log_pivots, _sums
+
+    f_ = design.factor
+    err = (_sums(f_)[1] / math.sqrt(f_.dim) + _log_pivots(f_)) * EPS
+    return 0.5 * err
+
+
 def derived_digits(st: Statements, design, sol: Solution, s, beta, se, tv, pv, dof, rss, ll, n) -> dict:
-    """Correct digits of standard errors, t, p, intervals, VIFs and log-likelihood (estimates, see docs)."""
+    """Correct digits of standard errors, t, p, intervals, VIFs and log-likelihood (computation, data as given).
+
+    Calibrated against mpmath in ``tests/accuracy/test_derived_calibration.py``; definitions in
+    ``docs/numerics.rst``.
+    """
     from scipy import stats
 
     kind = whitening_kind(design)
-    wf = {"none": 0.0, "weights": 1.0}.get(kind, math.sqrt(st.error_cov.condition) if st.error_cov else 1.0)
-    # diag of R^{-1} R^{-T}: relative error <= 2 eps kappa per unit of backward error in R (plus whitening)
-    se_rel = EPS * st.cond_fit * (1.0 + wf) + st.solve_error
+    p = len(sol.cols)
+    nan = math.nan
+    if not p or sol.var_rows is not None or sol.r is None:
+        return {k: nan for k in ("digits_stderr", "digits_tvalues", "digits_pvalues", "digits_conf_int",
+                                 "digits_vif", "digits_loglik")}
+    c_rel, vif_c, rss_cov, se_cov, nr, ckk, c_full = _cov_parts(design, sol, kind)
     xs = np.abs(sol.x)
     xn = float(np.max(xs)) if xs.size else 0.0
+    rho = math.sqrt(rss) if rss > 0 else 0.0
+    # rss is stationary in x: a coefficient error dx moves it by |A dx|^2 (second order)
+    dxa = nr * st.solve_error * xn
+    coef_abs = st.solve_error * xn * np.ones(p)
+    done = sol.steps > 0 and sol.converged and sol.last_corr <= 2 * EPS and st.solve_error <= 2 * EPS
+    if done:
+        # converged refinement with double-double residuals: what is left is the final rounding of x
+        # (eps |x_k|), the eps^2-level errors of the residuals mapped as a first-order change of the data
+        # (row k of R^-1, norm sqrt(C_kk), and C A^T r) and one more contraction of the last correction
+        # (kappa eps times it)
+        bw0 = float(np.linalg.norm(sol.wresid)) + nr * xn
+        c_cols0 = np.linalg.norm(c_full, axis=0)
+        coef_abs = np.minimum(coef_abs, EPS * xs + EPS * EPS * (np.sqrt(ckk) * bw0 + c_cols0 * nr * rho)
+                              + st.cond_fit * EPS * max(sol.last_corr, EPS) * xn)
+        # the refined residual is an unknown of the augmented system (Björck, 1967): it carries no rounding
+        # of x, except where the residual is recomputed from x (a covariance matrix; the no-Q path)
+        keep_x = kind == "matrix" or sol.q is None
+        dxa = min(dxa, EPS * rho + (EPS * nr * xn if keep_x else st.cond_fit * EPS * sol.last_corr * nr * xn))
+    bw = float(np.linalg.norm(sol.wresid)) + nr * xn     # >= |b| (whitened, unit columns)
+    resid_rel = 0.0
+    if sol.steps == 0 and rho > 0:
+        # unrefined: the residual is b - A x in double, entry errors up to (p+1) eps (|b_i| + |a_i||x|);
+        # they enter the rss as 2 r.dr, a sum of n terms of random sign (Higham & Mary, 2019: sqrt(n)
+        # growth). A coefficient error from a backward-stable QR moves A x by at most about
+        # eps (|b| + |A||x| + kappa |r|) (Wedin, 1973), however large dx itself is.
+        resid_rel = 2 * EPS * math.sqrt((p + 1) / n) * bw / rho
+        dxa = min(dxa, 2 * EPS * (bw + st.cond_fit * rho))
+        # and each coefficient by row k of R^-1 Q^T (norm sqrt(C_kk)) applied to that change, plus the
+        # residual term C dA^T r (first order; Wedin, 1973; Higham, 2002, §20.1)
+        c_cols = np.linalg.norm(c_full, axis=0)
+        coef_abs = np.minimum(coef_abs, 2 * EPS * (np.sqrt(ckk) * bw + c_cols * nr * rho))
+    rss_rel = (dxa / rho) ** 2 + resid_rel + rss_cov + (2 + math.sqrt(n)) * EPS if rho > 0 else math.inf
+    if se_cov is None:
+        se_rel = 0.5 * (c_rel + rss_rel) + 2 * EPS
+    else:
+        se_rel = 0.5 * (c_rel + rss_rel - rss_cov) + se_cov + 2 * EPS
     with np.errstate(divide="ignore", invalid="ignore"):
-        coef_rel = st.solve_error * xn / xs
+        coef_rel = coef_abs / xs
         t_rel = coef_rel + se_rel
         at = np.abs(np.asarray(tv, dtype=float))
         if dof > 0:
@@ -340,19 +476,18 @@ def derived_digits(st: Statements, design, sol: Solution, s, beta, se, tv, pv, d
         else:
             p_rel = np.full_like(at, np.nan)
         q = float(stats.t.ppf(0.975, dof)) if dof > 0 else math.nan
-        abs_err = st.solve_error * xn * s[sol.cols] + q * np.asarray(se) * se_rel
+        abs_err = coef_abs * s[sol.cols] + q * np.asarray(se) * se_rel
         ends = np.minimum(np.abs(beta - q * se), np.abs(beta + q * se))
-        ci_rel = abs_err / ends
-    p = len(sol.cols)
-    rho = math.sqrt(rss) if rss > 0 else 0.0
-    rss_rel = (2 * p * st.solve_error * xn / rho if rho > 0 else math.inf) + 2 * n * EPS
-    ll_abs = 0.5 * n * rss_rel + (n * EPS * wf if kind != "none" else 0.0)
+        ci_rel = abs_err / ends + 4 * EPS
+    pred = [k for k, c in enumerate(sol.cols) if c > 0]
+    vif_rel = vif_c[pred] + 4 * EPS if design.intercept and p > 1 and pred else None
+    ll_abs = 0.5 * n * rss_rel + _logdet_error(design, kind, n) + 2 * EPS * abs(ll) if math.isfinite(ll) else nan
     ll_rel = ll_abs / abs(ll) if ll and math.isfinite(ll) else math.nan
     return {
-        "digits_stderr": _min_digits(se_rel * np.ones(max(p, 1))) if p else math.nan,
-        "digits_tvalues": _min_digits(t_rel) if p and dof > 0 else math.nan,
-        "digits_pvalues": _min_digits(p_rel) if p and dof > 0 else math.nan,
-        "digits_conf_int": _min_digits(ci_rel) if p and dof > 0 else math.nan,
-        "digits_vif": _min_digits(2 * se_rel * np.ones(1)) if design.intercept and p > 1 else math.nan,
+        "digits_stderr": _min_digits(se_rel),
+        "digits_tvalues": _min_digits(t_rel) if dof > 0 else math.nan,
+        "digits_pvalues": _min_digits(p_rel) if dof > 0 else math.nan,
+        "digits_conf_int": _min_digits(ci_rel) if dof > 0 else math.nan,
+        "digits_vif": _min_digits(vif_rel) if vif_rel is not None else math.nan,
         "digits_loglik": float(_digits(ll_rel)) if math.isfinite(ll_rel) else math.nan,
     }

@@ -320,10 +320,20 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
                    note="chance of a chi-square at least this large if the covariance is right")
     rep.key_figure("Reduced chi-square", float(fit.reduced_chi2), digits=4, key="reduced-chi2",
                    note="about 1 when the stated covariance fits")
-    trusted = digits_trusted(float(h.digits_lost_2norm))
-    rep.key_figure("Digits in the parameter covariance", trusted, text=f"{trusted:.1f}", key="digits",
-                   tone="alert" if float(h.digits_lost_2norm) > current().digits_warn else "good",
-                   note=f"Jacobian condition number {format_number(h.cond, 3)}")
+    se_digits = float(getattr(h, "digits_stderr", math.nan))
+    if math.isfinite(se_digits):
+        # the statement: digits of the standard errors computed right for the Jacobian as evaluated and the
+        # covariance as given (accuracy of the computation; JacobianHealth.digits_stderr)
+        rep.key_figure("Digits of the standard errors", se_digits, text=f"{se_digits:.1f}", key="digits",
+                       tone="alert" if 15.95 - se_digits > current().digits_warn else "good",
+                       note=("computed right for the Jacobian as evaluated and the covariance as given "
+                             f"(accuracy of the computation); Jacobian condition number {format_number(h.cond, 3)}"))
+    else:
+        trusted = digits_trusted(float(h.digits_lost_2norm))
+        rep.key_figure("Digits in the parameter covariance", trusted, text=f"{trusted:.1f}", key="digits",
+                       tone="alert" if float(h.digits_lost_2norm) > current().digits_warn else "good",
+                       note=(f"bound from the Jacobian condition number {format_number(h.cond, 3)} "
+                             "(no computed-accuracy statement: rank deficient or rescaled)"))
     rep.key_figure("Converged", bool(fit.converged), key="converged", tone="good" if fit.converged else "alert",
                    note=f"{fit.n_evals} model evaluations" if hasattr(fit, "n_evals") else "")
 
