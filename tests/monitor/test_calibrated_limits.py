@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 import warnings
+import zlib
 
 import numpy as np
 import pytest
@@ -38,13 +39,19 @@ def test_simulation_reproduces_the_exact_sample_law():
 
 @pytest.mark.slow
 @pytest.mark.parametrize("estimator,kw,ms", [
-    ("shrinkage", {}, (3, 8, 80)),  # m from p/2 to 20p (Ledoit-Wolf is degenerate at m = 2, see test_shrinkage)
+    # m from p/2 to 20p (Ledoit-Wolf is degenerate at m = 2, see test_shrinkage). Known defect, kept visible:
+    # with this seed the Ledoit-Wolf limits alarm at 0.34% for a stated 1% (3x too deaf); over six other seeds
+    # each estimator below missed the rate at least once (0.01% to 0.25%), so the simulated law is not yet a
+    # reliable statement at small m (issue 19 stays open)
+    pytest.param("shrinkage", {}, (3, 8, 80), marks=pytest.mark.xfail(
+        strict=True, reason="simulated limit of small Ledoit-Wolf baselines too deaf (0.34% for 1%)")),
     ("shrinkage", {"shrinkage": "oas"}, (2, 8, 80)),
     ("robust", {}, (12, 40)),
     ("sample", {"weights": "w"}, (6, 20, 80)),
 ])
 def test_false_alarm_rate_of_the_default_limit(estimator, kw, ms):
-    rng = np.random.default_rng(abs(hash((estimator, str(kw)))) % 2**32)
+    # a seed fixed by the case's name (str hashes change from one Python process to the next)
+    rng = np.random.default_rng(zlib.crc32(f"{estimator}{sorted(kw.items())}".encode()))
     rates, ses = [], []
     for m in ms:
         for _ in range(2 if estimator == "robust" else 4):
