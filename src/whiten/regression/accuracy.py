@@ -35,7 +35,7 @@ from .._numerics import EPS
 from ..linalg import compensated
 from ..linalg.qr import tri_solve
 from .design import Design
-from .solve import Solution
+from .solve import Solution, refinement_verdict
 
 __all__ = ["refine_given", "data_sensitivity", "whitening_kind"]
 
@@ -121,13 +121,8 @@ def refine_given(design: Any, s: np.ndarray, sol: Solution, max_steps: int = 6) 
         xs = xs + dx
         var = var + dv
         steps += 1
-        xn = float(np.max(np.abs(xs)))
-        corr = float(np.max(np.abs(dx))) / xn if xn > 0 else 0.0
-        if corr <= 2 * EPS:
-            conv = True
-            break
-        if corr > 0.5 * prev:
-            conv = corr < 1e-10
+        corr, stop, conv = refinement_verdict(xs, dx, prev)
+        if stop:
             break
         prev = corr
     if kind == "weights":

@@ -45,7 +45,7 @@ from ..linalg.qr import (
 )
 from .design import Design
 
-__all__ = ["RANK_POLICIES", "MAX_REFINE", "BLOCKED_MAX_COND", "BLOCKED_AUTO_DIGITS", "Solution",
+__all__ = ["refinement_verdict", "RANK_POLICIES", "MAX_REFINE", "BLOCKED_MAX_COND", "BLOCKED_AUTO_DIGITS", "Solution",
            "refine_dense", "dense_solution", "minimum_norm", "blocked_solution", "solution_from_r"]
 
 RANK_POLICIES = ("nan", "drop", "raise", "minimum-norm")
@@ -75,6 +75,22 @@ class Solution:
     var_rows: np.ndarray | None = None   # minimum-norm: rows whose squared norms are the variances
 
 
+def refinement_verdict(x: np.ndarray, dx: np.ndarray, prev: float) -> tuple[float, bool, bool]:
+    """``(relative correction, stop, converged)`` after one refinement step ``x = x + dx``.
+
+    Stops at working precision (converged), or when the correction no longer at
+    least halves: stagnation at the arithmetic's limit, converged only if the
+    correction is already below 1e-10.
+    """
+    xn = float(np.max(np.abs(x))) if x.size else 0.0
+    corr = float(np.max(np.abs(dx))) / xn if xn > 0 else 0.0
+    if corr <= 2 * EPS:
+        return corr, True, True
+    if corr > 0.5 * prev:
+        return corr, True, corr < 1e-10
+    return corr, False, False
+
+
 def refine_dense(a, b, q, r, kind, max_steps):
     """Björck (1967) refinement of the augmented system with thin Q; returns x, resid, steps, conv, corr."""
     x = tri_solve(r, q.T @ b)
@@ -92,13 +108,8 @@ def refine_dense(a, b, q, r, kind, max_steps):
         x = x + dx
         res = res + dr
         steps += 1
-        xn = float(np.max(np.abs(x))) if x.size else 0.0
-        corr = float(np.max(np.abs(dx))) / xn if xn > 0 else 0.0
-        if corr <= 2 * EPS:
-            conv = True
-            break
-        if corr > 0.5 * prev:  # no longer contracting: stagnation at the arithmetic's limit
-            conv = corr < 1e-10
+        corr, stop, conv = refinement_verdict(x, dx, prev)
+        if stop:
             break
         prev = corr
     return x, res, steps, conv, corr
@@ -264,14 +275,9 @@ def solution_from_r(raug, p, path, tol, policy, max_steps, refine, notes, make_p
             dx = tri_solve(r, tri_solve(r, grad, trans=True))
             x = x + dx
             steps += 1
-            xn = float(np.max(np.abs(x))) if x.size else 0.0
-            corr = float(np.max(np.abs(dx))) / xn if xn > 0 else 0.0
+            corr, stop, conv = refinement_verdict(x, dx, prev)
             res, grad = residual_pass(x, True)
-            if corr <= 2 * EPS:
-                conv = True
-                break
-            if corr > 0.5 * prev:
-                conv = corr < 1e-10
+            if stop:
                 break
             prev = corr
     sol = Solution(kept, x, r, res, None, steps, conv, corr, kind, path, notes)
