@@ -33,6 +33,7 @@ BIG300 = "a,b,c\n" + _rows("{u:.3f},{v:.4f}e300,{w:.3f}")
 SMALL300 = "a,b,c\n" + _rows("{u:.3f},{v:.4f}e-300,{w:.3f}")
 CONST_DUP = "a,k,b,a2\n" + _rows("{u:.3f},1,{w:.3f},{u:.3f}")
 GOOD = "a,b,c\n0.1,0.2,0.3\n-0.4,0.5,0.1\n0.3,-0.2,0.4\n"
+WEIGHTED = "a,b,c,n\n" + _rows("{u:.3f},{v:.3f},{w:.3f},{{w}}").replace("{w}", "{w0}", 1)
 DEEP = '{"format": "whiten.baseline/2", "payload": ' + "[" * 5000 + "]" * 5000 + ', "sha256": "0"}'
 MODEL = "<model>"  # placeholder: the catalogue's model file
 
@@ -190,6 +191,25 @@ CLI = [
     ("baseline-constant-and-duplicate", {"d.csv": CONST_DUP}, "baseline d.csv -o b.json",
      1, ["constant", "'k'", "linearly dependent", "a2"], []),
     ("baseline-one-row", {"d.csv": "a,b,c\n1,2,3\n"}, "baseline d.csv -o b.json", 1, ["1 complete row"], []),
+    # -- weights given as a column of the file: the file, its line and the weight column are named
+    ("baseline-weights-all-zero", {"d.csv": WEIGHTED.format(w0=0, w=0)}, "baseline d.csv -o b.json --weight-column n",
+     1, ["d.csv", "weight column 'n'", "0 in every one of the 12", "positive weight"], []),
+    ("baseline-weights-negative", {"d.csv": WEIGHTED.format(w0=-2, w=1)}, "baseline d.csv -o b.json --weight-column n",
+     1, ["d.csv", "line 2", "row 0", "weight column 'n'", "-2", "non-negative"], []),
+    ("baseline-weights-missing", {"d.csv": WEIGHTED.format(w0="", w=1)}, "baseline d.csv -o b.json --weight-column n",
+     1, ["d.csv", "line 2", "weight column 'n' is missing"], []),
+    ("baseline-weights-text", {"d.csv": WEIGHTED.format(w0="two", w=1)}, "baseline d.csv -o b.json --weight-column n",
+     1, ["d.csv", "line 2", "column 'n'", "'two'"], []),
+    ("baseline-weights-inf", {"d.csv": WEIGHTED.format(w0="inf", w=1)}, "baseline d.csv -o b.json --weight-column n",
+     1, ["d.csv", "line 2", "column 'n'", "inf"], []),
+    ("baseline-weights-not-a-column", {"d.csv": WEIGHTED.format(w0=1, w=1)},
+     "baseline d.csv -o b.json --weight-column count", 1, ["'count'"], []),
+    ("baseline-weights-with-shrinkage", {"d.csv": WEIGHTED.format(w0=1, w=1)},
+     "baseline d.csv -o b.json --weight-column n --estimator shrinkage", 1, ["weights", "sample"], []),
+    ("regress-weights-zero", {"d.csv": WEIGHTED.format(w0=0, w=1)}, "regress d.csv --response a --weights n -o f.json",
+     1, ["d.csv", "'n'", "weight 0", "positive"], []),
+    ("regress-weights-negative", {"d.csv": WEIGHTED.format(w0=1, w=-1)},
+     "regress d.csv --response a --weights n -o f.json", 1, ["d.csv", "'n'", "-1", "positive"], []),
     # -- loglik
     ("loglik-inf", {"d.csv": "a,b,c\n1,2,3\ninf,2,3\n"}, "loglik d.csv --baseline m.json -o l.csv",
      1, ["d.csv", "line 3", "'a'"], []),
@@ -321,7 +341,8 @@ API = [
     ("baseline-constant-to-rounding", lambda t: whiten.fit_baseline(
         np.c_[np.arange(9.0), 1 + np.sin(np.arange(9.0)) * 1e-300]), InputError, ["constant", "'x1'"]),
     ("baseline-zero-weights", lambda t: whiten.fit_baseline(np.c_[np.arange(9.0), np.sin(np.arange(9.0))],
-                                                            weights=np.zeros(9)), InputError, ["weight 0"]),
+                                                            weights=np.zeros(9)), InputError,
+     ["weight is 0 in every one of the 9"]),
     ("baseline-one-row-no-weights", lambda t: whiten.fit_baseline([[1.0, 2.0]]), InputError, ["1 complete row"]),
     ("baseline-constant-and-duplicate", lambda t: whiten.fit_baseline(
         np.c_[np.arange(9.0), np.ones(9), np.sin(np.arange(9.0)), np.arange(9.0) * 2]),

@@ -88,7 +88,7 @@ def test_options_are_checked():
         whiten.fit_baseline(x, columns=["a", "b"])
     with pytest.raises(whiten.InputError, match="weights: 79 entries"):
         whiten.fit_baseline(x, weights=np.ones(79))
-    with pytest.raises(whiten.InputError, match="weight -1"):
+    with pytest.raises(whiten.InputError, match="row 0: the weight is -1"):
         whiten.fit_baseline(x, weights=-np.ones(80))
     with pytest.raises(whiten.InputError, match="chunksize"):
         whiten.fit_baseline(x, chunksize=0)

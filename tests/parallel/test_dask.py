@@ -96,7 +96,7 @@ def test_weighted_baseline_on_dask_equals_in_memory_and_numpy_fweights(client, p
     assert b.n == ref.n and b.weight_sum == ref.weight_sum == df["reps"].sum()
     bad = df.copy()
     bad.iloc[9000, -1] = -2.0
-    with pytest.raises(InputError, match=r"weights: partition 1, index 19000 has weight -2"):
+    with pytest.raises(InputError, match=r"data \(partition 1\): index 19000: weight column .reps. is -2"):
         whiten.fit_baseline(dd.from_pandas(bad, npartitions=5), weights="reps")
     with pytest.raises(InputError, match="pass the name of a weights column"):
         whiten.fit_baseline(dd.from_pandas(df, npartitions=5), weights=df["reps"].to_numpy())

@@ -24,12 +24,17 @@ __all__ = ["MISSING_POLICIES", "check_frequency_weights", "clean_block", "CleanB
 MISSING_POLICIES = ("drop", "error")
 
 
-def check_frequency_weights(w: np.ndarray, where: Callable[[int], str]) -> None:
-    """Frequency weights must be finite and non-negative; the first bad one is named by ``where(k)``."""
+def check_frequency_weights(w: np.ndarray, where: Callable[[int], str], what: str = "the weight") -> None:
+    """Frequency weights must be finite and non-negative; the first bad one is named by ``where(k)``.
+
+    ``what`` names the weight in the message (``"weight column 'n_seen'"`` for a weight column).
+    """
     bad = ~np.isfinite(w) | (w < 0)
     if bad.any():
         k = int(np.flatnonzero(bad)[0])
-        raise InputError(f"weights: {where(k)} has weight {w[k]}; weights must be finite and non-negative")
+        shown = "missing" if np.isnan(w[k]) else f"{w[k]:g}"
+        raise InputError(f"{where(k)}: {what} is {shown}; frequency weights must be finite and "
+                         "non-negative (a weight of 0 leaves the row out)")
 
 
 @dataclass
@@ -49,7 +54,8 @@ class CleanBlock:
 
 
 def clean_block(values: np.ndarray, weights: np.ndarray | None, names: list[str], missing: str,
-                where: Callable[[int], str]) -> CleanBlock:
+                where: Callable[[int], str], weights_name: str = "the weight", *,
+                name_first: bool = True) -> CleanBlock:
     """Apply the weights check and the missing-value policy to one raw block.
 
     Parameters
@@ -61,8 +67,14 @@ def clean_block(values: np.ndarray, weights: np.ndarray | None, names: list[str]
         Column names, for messages.
     missing : {"drop", "error"}
     where : callable
-        ``where(r)`` describes row ``r`` of the block for a message (e.g.
-        ``"row 1207 (index '2026-03-01 04:00')"``).
+        ``where(r)`` names row ``r`` of the block for a message, with its source (e.g.
+        ``"data: row 1207 (index '2026-03-01 04:00')"`` or
+        ``"data file 'week.csv': line 1209, row 1207 (0-based data row)"``).
+    weights_name : str
+        How messages name a row's weight (``"weight column 'n'"``, or ``"the weight"``).
+    name_first : bool
+        Name the first incomplete row left out (``first_dropped``); a caller
+        that already has one passes False, which spares a file-line lookup.
 
     Raises
     ------
@@ -77,13 +89,13 @@ def clean_block(values: np.ndarray, weights: np.ndarray | None, names: list[str]
     looked at cell by cell. No N x p mask for a clean block.
     """
     if weights is not None:
-        check_frequency_weights(weights, where)
+        check_frequency_weights(weights, where, weights_name)
     if not values.size or np.isfinite(values.sum()):
         return CleanBlock(values, weights, None, None, None)
     inf = np.isinf(values)
     if inf.any():
         r, c = (int(v) for v in np.argwhere(inf)[0])
-        raise InputError(f"data: {where(r)}, column {names[c]!r} is {values[r, c]}; every value must be "
+        raise InputError(f"{where(r)}, column {names[c]!r} is {values[r, c]}; every value must be "
                          "a finite number (a missing value may be NaN)")
     nan = np.isnan(values)
     per_col = nan.sum(axis=0)
@@ -93,18 +105,21 @@ def clean_block(values: np.ndarray, weights: np.ndarray | None, names: list[str]
     k = int(np.flatnonzero(bad)[0])
     j = int(np.flatnonzero(nan[k])[0])
     if missing == "error":
-        raise InputError(f"data: {where(k)}, column {names[j]!r} is missing; pass missing='drop' "
-                         "to leave incomplete rows out (they are counted and reported)")
+        raise InputError(f"{where(k)}, column {names[j]!r} is missing; pass --missing drop "
+                         "(missing='drop' in Python) to leave incomplete rows out (they are counted and reported)")
     keep = ~bad
-    return CleanBlock(values[keep], None if weights is None else weights[keep], keep, (where(k), names[j]), per_col)
+    first = (where(k), names[j]) if name_first else None
+    return CleanBlock(values[keep], None if weights is None else weights[keep], keep, first, per_col)
 
 
 def dropped_rows_warning(n_dropped: int, n_read: int, first: tuple[str, str]) -> None:
     """The one warning for incomplete reference rows left out (both engines)."""
     w, c = first
     warn(UserWarning,
-         f"left out {n_dropped} incomplete row(s) of {n_read} (first: {w}, column {c!r} missing); the baseline "
-         f"uses the other {n_read - n_dropped} row(s). Pass missing='error' to stop at the first one instead")
+         f"left out {n_dropped} incomplete row(s) of {n_read} (first: {w.removeprefix('data: ')}, column {c!r} "
+         f"missing); the baseline "
+         f"uses the other {n_read - n_dropped} row(s). Pass --missing error (missing='error' in Python) "
+         "to stop at the first one instead")
 
 
 class Cleaner:
@@ -131,6 +146,7 @@ class Cleaner:
         self.n_blocks = 0
         names = self.source.names
         col_missing = np.zeros(len(names), dtype=np.int64)
+        positive, weighted = 0, False  # complete rows with a positive weight, when there are weights
         for vals, wcol, pos, lab in self.source.raw_blocks():
             self.n_blocks += 1
             self.n_read += vals.shape[0]
@@ -141,9 +157,10 @@ class Cleaner:
                 w = self.weights[pos]
 
             def where(r: int, pos=pos, lab=lab) -> str:
-                return f"row {int(pos[r])}" + ("" if lab is None or lab[r] == pos[r] else f" (index {lab[r]!r})")
+                return self.source.row_place(int(pos[r]), None if lab is None else lab[r])
 
-            out = clean_block(vals, w, names, self.missing, where)
+            out = clean_block(vals, w, names, self.missing, where, self.source.weights_name,
+                              name_first=self.first_dropped is None)
             if out.nan_per_column is not None:
                 col_missing += out.nan_per_column
             if out.keep is not None:
@@ -152,9 +169,17 @@ class Cleaner:
                     self.first_dropped = out.first_dropped
                 pos = pos[out.keep]
                 lab = None if lab is None else lab[out.keep]
+            if out.weights is not None:
+                weighted = True
+                positive += int(np.count_nonzero(out.weights))
             yield Block(out.values, out.weights, pos, lab)
         if self.weights is not None and self.n_read != self.weights.shape[0]:
             raise InputError(f"weights: {self.weights.shape[0]} entries for {self.n_read} rows of data")
+        kept = self.n_read - self.n_dropped
+        if kept and weighted and positive == 0:
+            place = self.source.label if self.source.weight_column else "data"
+            raise InputError(f"{place}: {self.source.weights_name} is 0 in every one of the {kept} "
+                             "complete row(s), so no row counts in the fit; give at least two rows a positive weight")
         if self.n_read and self.n_dropped == self.n_read:
             empty = [names[j] for j in range(len(names)) if col_missing[j] == self.n_read]
             worst = ", ".join(f"{names[j]!r} ({int(col_missing[j])})"
@@ -162,7 +187,7 @@ class Cleaner:
             raise InputError(
                 f"every one of the {self.n_read} rows has a missing value, so no complete row is left"
                 + (f"; column(s) {empty} are missing in every row" if empty else f"; most missing: {worst}")
-                + ". Leave such columns out with columns=[...]")
+                + ". Leave such columns out with --columns (columns=[...] in Python)")
 
     def report(self) -> None:
         """Warn once if incomplete rows were left out."""

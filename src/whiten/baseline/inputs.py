@@ -53,6 +53,7 @@ class Source:
         self.names: list[str]
         self._array: np.ndarray | None = None
         self._wvals: np.ndarray | None = None
+        self._table: Table | None = None
         if chunksize is not None and (not isinstance(chunksize, (int, np.integer)) or chunksize < 1):
             raise InputError(f"chunksize: expected a positive integer, got {chunksize!r}")
         if isinstance(data, (str, os.PathLike, Table)):
@@ -81,6 +82,7 @@ class Source:
         self.names = cols
         self.reiterable = True
         self.label = table.where
+        self._table = table
 
         def frames():
             chunks = table.chunks(cols + extra, chunksize=self.chunksize, index_column=index_column)
@@ -180,6 +182,20 @@ class Source:
         if arr.ndim != 2:
             raise InputError(f"data: chunks must be 2-D, got shape {arr.shape}")
         return [f"x{k}" for k in range(arr.shape[1])]
+
+    def row_place(self, pos: int, label: Any = None) -> str:
+        """How messages name data row ``pos``: with the file and its line when the rows come from a file."""
+        if self._table is not None:
+            same = label is None or (not isinstance(label, str) and label == pos)
+            return f"{self._table.where}: {self._table.at(pos, None if same else label)}"
+        if hasattr(label, "item"):
+            label = label.item()
+        return f"data: row {pos}" + ("" if label is None or label == pos else f" (index {label!r})")
+
+    @property
+    def weights_name(self) -> str:
+        """How messages name the weights: their column, or the weights= argument."""
+        return f"weight column {self.weight_column!r}" if self.weight_column else "the weight"
 
     # -- blocks
     def raw_blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None, np.ndarray, Any]]:

@@ -153,9 +153,9 @@ def check_scatter(state: ScatterState, names: Sequence[str], *, dependent: bool 
                             f"among the columns that vary): {parts}")
             leave += [str(c) for c in rep.dependent]
     if problems:
-        alt = ", or use estimator='shrinkage'" if len(leave) > len(const) else ""
+        alt = ", or use --estimator shrinkage (estimator='shrinkage' in Python)" if len(leave) > len(const) else ""
         raise InputError(f"{'; '.join(problems)}. Leave out {', '.join(repr(c) for c in leave)} "
-                         f"with columns=[...]{alt}")
+                         f"with --columns (columns=[...] in Python){alt}")
 
 
 def factor_from_r(r: np.ndarray, scale: float, names: Sequence[str] | None, method: str = "tsqr") -> Factor:

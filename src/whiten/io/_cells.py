@@ -96,7 +96,7 @@ def _not_numeric(where: str, path: Path, fmt: str, column: str, row: int, value:
         why = ("',' is a thousands separator or a decimal comma, which whiten never guesses; remove the "
                "thousands separators, or for a decimal comma pass --sep ';' --decimal ','")
     else:
-        why = "Fix the cell, or leave the column out with --columns / columns=[...]"
+        why = "Fix the cell, or leave the column out with --columns (columns=[...] in Python)"
     return InputError(f"{where}: column {column!r} is not numeric: {at} holds {value!r}. {why}")
 
 

@@ -40,9 +40,12 @@ def whitened_and_drop(factor: Factor, d: np.ndarray) -> tuple[np.ndarray, np.nda
     ``w = S^{-1} d = L^{-T} z`` reuses z, so the pair costs two triangular
     solves with a matrix right-hand side (BLAS-3), 2 N k^2 flops.
     """
-    z = factor.whiten(d)
-    w = factor.solve_lower(z.T, trans=True).T
-    return z, w * w / factor.inv_diag()[None, :]
+    # a reading far beyond the double range of its sensor's spread overflows to inf (the row is
+    # noted by the scorer); numpy's overflow warning would only repeat that
+    with np.errstate(over="ignore", invalid="ignore"):
+        z = factor.whiten(d)
+        w = factor.solve_lower(z.T, trans=True).T
+        return z, w * w / factor.inv_diag()[None, :]
 
 
 def score_terms_into(factor: Factor, x: np.ndarray, shift: np.ndarray, d2: np.ndarray, chain: np.ndarray,
@@ -55,12 +58,13 @@ def score_terms_into(factor: Factor, x: np.ndarray, shift: np.ndarray, d2: np.nd
     ``w = L^{-T} z`` overwrites it and becomes ``w**2 / (S^{-1})_jj``. Two BLAS-3
     triangular solves and no temporary array.
     """
-    z = factor._whiten_block(x, shift, drop)  # solved in place in drop
-    np.einsum("ij,ij->i", z, z, out=d2)  # the same reduction as the general path, bit for bit
-    np.multiply(z, z, out=chain)
-    w = factor._solve_rows(z, trans=True)
-    np.multiply(w, w, out=w)
-    w /= factor.inv_diag()[None, :]
+    with np.errstate(over="ignore", invalid="ignore"):  # overflow to inf is noted by the scorer
+        z = factor._whiten_block(x, shift, drop)  # solved in place in drop
+        np.einsum("ij,ij->i", z, z, out=d2)  # the same reduction as the general path, bit for bit
+        np.multiply(z, z, out=chain)
+        w = factor._solve_rows(z, trans=True)
+        np.multiply(w, w, out=w)
+        w /= factor.inv_diag()[None, :]
 
 
 def drop_terms(factor: Factor, d: np.ndarray) -> np.ndarray:

@@ -378,16 +378,19 @@ class EwmaSmoother:
         count = np.empty(n, dtype=np.int64)
         top = np.full(n, "", dtype=object)
         if idx.size:
-            u = self.factor.whiten(x[idx] - self.mean)
-            # v_t = lam u_t + (1 - lam) v_{t-1}; the filter's carried state is (1 - lam) v_{t-1}
-            v, _ = lfilter([lam], [1.0, -(1.0 - lam)], u, axis=0, zi=((1.0 - lam) * self.v)[None, :])
-            tt = self.t + np.arange(1, idx.size + 1)
-            c = _c(tt, lam, "exact")
-            t2[idx] = np.einsum("ij,ij->i", v, v) / c
-            w = self.factor.solve_lower(v.T, trans=True).T  # Sigma^{-1} z_t up to the factor c_t
-            drop[idx] = w * w / self.factor.inv_diag()[None, :] / c[:, None]
-            top[idx] = np.asarray(self.columns, dtype=object)[np.argmax(drop[idx], axis=1)]
-            self.v = v[-1].copy()
+            # a reading beyond the double range of its spread overflows to inf, as T2's d2 does (the
+            # scores note it); numpy's overflow warning would only repeat that
+            with np.errstate(over="ignore", invalid="ignore"):
+                u = self.factor.whiten(x[idx] - self.mean)
+                # v_t = lam u_t + (1 - lam) v_{t-1}; the filter's carried state is (1 - lam) v_{t-1}
+                v, _ = lfilter([lam], [1.0, -(1.0 - lam)], u, axis=0, zi=((1.0 - lam) * self.v)[None, :])
+                tt = self.t + np.arange(1, idx.size + 1)
+                c = _c(tt, lam, "exact")
+                t2[idx] = np.einsum("ij,ij->i", v, v) / c
+                w = self.factor.solve_lower(v.T, trans=True).T  # Sigma^{-1} z_t up to the factor c_t
+                drop[idx] = w * w / self.factor.inv_diag()[None, :] / c[:, None]
+                top[idx] = np.asarray(self.columns, dtype=object)[np.argmax(drop[idx], axis=1)]
+                self.v = v[-1].copy()
         held_before = np.cumsum(~complete)
         count[:] = self.t + np.cumsum(complete)
         self.t += idx.size

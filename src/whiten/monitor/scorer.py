@@ -241,6 +241,10 @@ class Scorer:
             else:
                 gone = [self.columns[j] for j in np.flatnonzero(mask[i])]
                 note[i] = f"scored on {nobs[i]} of {p} sensors; missing {', '.join(gone)}"
+        for i in np.flatnonzero(np.isinf(d2)):
+            extra = ("d2 overflows double precision: a reading is beyond about 1e150 times its sensor's "
+                     "spread (a unit or logging error?); alarmed, contributions not meaningful")
+            note[i] = f"{note[i]}; {extra}" if note[i] else extra
         if self.phase == "reference":
             # a reference row cannot exceed (m-1)^2/m (Tracy, Young & Mason 1992)
             bound = (self.m - 1.0) ** 2 / self.m

@@ -167,7 +167,7 @@ def _values(chunk: Any, scorer: Scorer, table: Table, first: int) -> np.ndarray:
         if bad.any():
             r, c = (int(v) for v in np.argwhere(bad)[0])
             label = chunk.index[r] if chunk.index.name is not None else None
-            hint = "" if scorer.missing == "marginalize" else " (missing values are not allowed with missing='error')"
+            hint = "" if scorer.missing == "marginalize" else " (missing='error' allows no missing value)"
             raise InputError(f"{table.where}: {table.at(first + r, label)}, column "
                              f"{scorer.columns[c]!r} is {x[r, c]}{hint}; every value must be a finite number"
                              + (" (leave a reading empty if it is missing)" if not hint else ""))

@@ -7,6 +7,7 @@ merges (:mod:`whiten.estimate.streaming`), so the two engines cannot drift.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Sequence
 from typing import Any
@@ -58,7 +59,8 @@ def _blocks(data: Any, columns: Sequence[str] | None, weight_column: str | None 
         parts = data[take].to_delayed()
         # (label, offset) per block: frames name their partitions, arrays give row offsets
         where: list[tuple[str | None, int | None]] = [(f"partition {k}", None) for k in range(len(parts))]
-        convert = _frame_values if weight_column is None else _frame_values_weighted
+        convert = (_frame_values if weight_column is None
+                   else functools.partial(_frame_values_weighted, weights_name=f"weight column {weight_column!r}"))
         return names, [(convert, part) for part in parts], where
     arr = data
     if arr.ndim != 2:
@@ -80,26 +82,27 @@ def _frame_values(frame) -> tuple[np.ndarray, Any]:
     return values, index
 
 
-def _frame_values_weighted(frame) -> tuple[np.ndarray, Any, np.ndarray]:
-    """The fitted columns and, last, the weights column of one partition."""
+def _frame_values_weighted(frame, weights_name: str) -> tuple[np.ndarray, Any, np.ndarray, str]:
+    """The fitted columns and, last, the weights column of one partition (and how messages name it)."""
     values, _, index = as_float_array(frame, name="data", ndim=(2,), allow_nan=True)
-    return values[:, :-1], index, values[:, -1].copy()
+    return values[:, :-1], index, values[:, -1].copy(), weights_name
 
 def _clean(block, convert, label: str | None, offset: int | None, names: Sequence[str], missing: str):
     """Rows of one block with the missing-value policy applied, plus counts (runs on a worker)."""
-    w = None
+    w, wname = None, "the weight"
     if convert is not None:
         values, index, *rest = convert(block)
         w = rest[0] if rest else None
+        wname = rest[1] if len(rest) > 1 else wname
     else:
         values, index = np.asarray(block, dtype=np.float64), None
 
     def where(r: int) -> str:
         if offset is not None:
-            return f"row {offset + r}"
-        return f"{label}, index {index[r]!r}" if index is not None else f"{label}, row {r}"
+            return f"data: row {offset + r}"
+        return f"data ({label}): index {index[r]!r}" if index is not None else f"data ({label}): row {r}"
 
-    out = clean_block(values, w, list(names), missing, where)
+    out = clean_block(values, w, list(names), missing, where, wname)
     n_read = values.shape[0]
     return out.values, n_read, n_read - out.values.shape[0], out.first_dropped, out.weights
 
