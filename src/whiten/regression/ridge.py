@@ -28,7 +28,7 @@ import math
 import numpy as np
 from scipy import stats
 
-from .._numerics import EPS
+from .._numerics import EPS, column_norms
 from .._warn import warn
 from ..errors import InputError, NumericalWarning
 from ..linalg.qr import (
@@ -105,8 +105,10 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     bc = _project_out(b, w1) if w1 is not None else b.copy()
     k = xc.shape[1]
     if standardize:
-        d = np.sqrt(np.einsum("ij,ij->j", xc, xc) / n)
-        bad = np.flatnonzero(d == 0)
+        d = column_norms(xc) / math.sqrt(n)
+        # scale-free: constant when the centred spread is rounding of the column's own level
+        level = np.max(np.abs(xw), axis=0) if n else np.zeros(k)
+        bad = np.flatnonzero(d <= 8 * EPS * level)
         if bad.size:
             raise InputError(f"ridge: predictor {design.names[bad[0]]!r} is constant; it cannot be standardized")
     else:
@@ -160,7 +162,7 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     # fixed penalty: augmented least squares, Householder QR + refinement
     aug = np.vstack([xs, math.sqrt(lam) * np.eye(k)]) if lam > 0 else xs
     baug = np.concatenate([bc, np.zeros(k)]) if lam > 0 else bc
-    norms = np.sqrt(np.einsum("ij,ij->j", aug, aug))
+    norms = column_norms(aug)
     sc = pow2_column_scale(norms)
     augs = aug * sc[None, :]
     q, r = householder_thin(augs)
@@ -192,7 +194,7 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     adj = 1 - (1 - r2) * (n - int(icpt)) / dof if dof > 0 else math.nan
     ll = gaussian_loglik(design, rss, n)
     # unpenalised diagnostics of the design
-    s_full = pow2_column_scale(np.sqrt(np.einsum("ij,ij->j", a, a)))
+    s_full = pow2_column_scale(column_norms(a))
     _, r_full = householder_thin(a * s_full[None, :])
     tol = 10 * max(n, design.p) * EPS
     coll = collinearity_report(r_full, design.all_names, exact_tol=tol)
