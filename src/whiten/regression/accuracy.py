@@ -297,12 +297,15 @@ def statements(design, sol: Solution, s: np.ndarray, cond_fit: float, tan_t: flo
     bound = EPS * rel if rel is not None else EPS * (cond_fit + cond_fit ** 2 * tan_t)
     cov = _cov_health(design, sol, s)
     kind = whitening_kind(design)
+    probed = sol.steps == 0 and sol.error_estimate is not None
     if sol.steps > 0:
         lc = sol.last_corr if math.isfinite(sol.last_corr) else 1.0
         err = EPS if (sol.converged and lc <= 2 * EPS) else max(lc, EPS)
+    elif probed:  # one correction against the data as given measures the whole error (x2, plus the solver floor)
+        err = 2.0 * float(sol.error_estimate or 0.0) + EPS * cond_fit
     else:
         err = bound
-    given = sol.method.endswith("+given")
+    given = sol.method.endswith("+given") or probed
     if kind == "weights" and not given and sol.steps > 0:
         err += bound           # sqrt(w) and the products: at most eps per whitened entry
     if kind == "matrix" and not given:

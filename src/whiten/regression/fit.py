@@ -237,4 +237,8 @@ def _fit_design(design, rank_policy: str, rank_tol: float | None, method: str, r
                                              notes, path=path)
         if refine is not False:
             sol = refine_given(design, s, sol, MAX_REFINE)
+        else:  # measure, without applying, how far the unrefined solution is from the data as given
+            probe = refine_given(design, s, sol, 1)
+            if probe is not sol and math.isfinite(probe.last_corr):
+                sol.error_estimate = float(probe.last_corr)
     return assemble(design, sol, s, r_full, aside, tol, rank_policy)

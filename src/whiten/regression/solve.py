@@ -73,6 +73,7 @@ class Solution:
     method: str         # what ran (becomes FitHealth.method)
     notes: list
     var_rows: np.ndarray | None = None   # minimum-norm: rows whose squared norms are the variances
+    error_estimate: float | None = None  # refine=False: one unapplied correction against the data as given
 
 
 def refinement_verdict(x: np.ndarray, dx: np.ndarray, prev: float) -> tuple[float, bool, bool]:
