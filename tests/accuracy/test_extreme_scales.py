@@ -268,3 +268,19 @@ def test_regression_collinear_only_when_dependent_at_every_scale(scale):
     with pytest.warns(whiten.RankDeficiencyWarning, match="'x3'"):
         fd = whiten.fit_linear(dep, y)
     assert fd.health.rank == 4 and "x3" in fd.health.set_aside
+
+
+def test_model_file_with_extreme_columns_round_trips(tmp_path):
+    # reference: the in-memory model (checked against mpmath above); the file must give the same d2
+    x = _rows(seed=9)
+    x[:, 0] *= 1e160
+    x[:, 2] *= 1e-160
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        b = whiten.fit_baseline(x)
+        b.save(tmp_path / "m.json")
+        back = whiten.load_baseline(tmp_path / "m.json")
+        d0 = b.score(x[:5])["d2"].to_numpy()
+        d1 = back.score(x[:5])["d2"].to_numpy()
+    np.testing.assert_allclose(d1, d0, rtol=1e-14)
+    assert abs(back.health.digits_lost - b.health.digits_lost) < 0.3
