@@ -11,6 +11,7 @@ from .baseline import Baseline, BaselineHealth, fit_baseline, load_baseline
 from .errors import (
     ConditioningWarning,
     InputError,
+    IntegerPrecisionWarning,
     JitterWarning,
     ModelFileError,
     NotPositiveDefiniteError,
@@ -69,6 +70,7 @@ __all__ = [
     "get_options", "options", "set_options",
     "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
     "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning",
+    "IntegerPrecisionWarning",
     "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
     "Gaussian", "RowEvaluation",
     # regression

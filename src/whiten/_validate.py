@@ -89,11 +89,64 @@ def _frame_to_array(df, name: str) -> tuple[np.ndarray, list[str], Any]:
             if dt.kind == "b":
                 continue
             df = df.assign(**{col: coerced})
+    ints = [(str(col), df[col].to_numpy()) for col, dt in zip(df.columns, df.dtypes) if dt.kind in "iu"]
+    if ints:
+        disclose_integer_rounding(ints, None, name=name)
     try:
         values = df.to_numpy(dtype=np.float64, na_value=np.nan)
     except (TypeError, ValueError) as exc:  # pragma: no cover - guarded above
         raise InputError(f"{name}: could not convert to numbers ({exc})") from None
     return values, names, df.index
+
+
+#: the largest magnitude below which every integer is a double: 2**53
+EXACT_INTEGER_LIMIT = 2 ** 53
+
+
+def _inexact_integers(col: np.ndarray) -> np.ndarray:
+    """Positions of the entries of an integer array that float64 does not hold exactly."""
+    if col.dtype.kind == "O":  # Python integers of any size
+        return np.flatnonzero([abs(v) > EXACT_INTEGER_LIMIT and int(float(v)) != v for v in col.tolist()])
+    cand = np.flatnonzero((col > EXACT_INTEGER_LIMIT) | (col < -EXACT_INTEGER_LIMIT))
+    if cand.size == 0:
+        return cand
+    vals = col[cand]
+    f = vals.astype(np.float64)
+    if np.finfo(np.longdouble).nmant >= 63:  # x86 extended precision holds every 64-bit integer
+        return cand[vals.astype(np.longdouble) != f.astype(np.longdouble)]
+    return cand[[int(v) != int(g) for v, g in zip(vals.tolist(), f.tolist())]]  # pragma: no cover
+
+
+def disclose_integer_rounding(values: Any, names: Sequence[str] | None, *, name: str,
+                              first_row: int = 0, where: Any = None) -> None:
+    """Warn (:class:`~whiten.errors.IntegerPrecisionWarning`) per column of integers beyond 2**53
+    that the conversion to float64 rounds, naming the column, the first such row and the change.
+
+    ``values`` is an integer array (1-D or 2-D) or a sequence of (column name, integer array)
+    pairs; ``where(row)`` may word a row (e.g. with its file line).
+    """
+    from ._warn import warn
+    from .errors import IntegerPrecisionWarning
+
+    if isinstance(values, np.ndarray):
+        v2 = values.reshape(values.shape[0], -1) if values.ndim >= 2 else values.reshape(-1, 1)
+        cols = [(names[j] if names is not None else (None if values.ndim == 1 else j), v2[:, j])
+                for j in range(v2.shape[1])]
+    else:
+        cols = list(values)
+    for label, col in cols:
+        arr = np.asarray(col) if not isinstance(col, list) else np.array(col, dtype=object)
+        bad = _inexact_integers(arr)
+        if bad.size == 0:
+            continue
+        r = int(bad[0])
+        v = int(arr[r])
+        row = where(first_row + r) if where is not None else f"row {first_row + r}"
+        what = "" if label is None else (f" column {label!r}" if isinstance(label, str) else f" column {label}")
+        warn(IntegerPrecisionWarning,
+             f"{name}:{what} holds {bad.size} integer(s) beyond 2**53 that float64 cannot hold exactly; "
+             f"they were rounded (first: {row}, {v} became {float(v):.17g}, a change of "
+             f"{int(float(v)) - v:+d}). Subtract a reference value or use other units if the last digits matter")
 
 
 def _as_ndarray(data: Any, name: str) -> np.ndarray:
@@ -171,6 +224,12 @@ def as_float_array(
         arr = _as_ndarray(data, name)
         if arr.dtype.kind == "c":
             raise InputError(f"{name}: complex values are not supported; whiten works with real numbers")
+        if arr.dtype.kind in "iu":
+            disclose_integer_rounding(arr, None, name=name)
+        elif arr.dtype.kind == "O" and arr.size and type(arr.flat[0]) is int:  # Python ints beyond 64 bits
+            v2 = arr.reshape(arr.shape[0], -1) if arr.ndim >= 2 else arr.reshape(-1, 1)
+            disclose_integer_rounding([(j, [int(v) if type(v) is int else 0 for v in v2[:, j]])
+                                       for j in range(v2.shape[1])], None, name=name)
         if arr.dtype.kind not in "biuf":
             try:
                 arr = arr.astype(np.float64)

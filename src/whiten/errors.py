@@ -24,6 +24,7 @@ __all__ = [
     "JitterWarning",
     "ConditioningWarning",
     "RankDeficiencyWarning",
+    "IntegerPrecisionWarning",
 ]
 
 
@@ -74,6 +75,10 @@ class ConditioningWarning(NumericalWarning):
 
 class RankDeficiencyWarning(NumericalWarning):
     """A matrix or design is (numerically) rank deficient; the message names columns."""
+
+
+class IntegerPrecisionWarning(NumericalWarning):
+    """Integers beyond 2**53 that float64 cannot hold were rounded; the message names the column."""
 
 
 class WeakScreenWarning(UserWarning):

@@ -100,6 +100,22 @@ def _problems():
     x1 = rng.standard_normal(40)
     xd = np.column_stack([x1, x1 + 1e-6 * rng.standard_normal(40)])
     out.append(("ols-nearduplicate-unrefined", xd, x1 + 0.01 * rng.standard_normal(40), {"refine": False}))
+    # ridge at a fixed penalty on the predictors (issue 13 item 4): same sums with G = A^T S^-1 A + lambda P
+    rr = np.random.default_rng(7391)
+    for lam in [1e-6, 1e-2, 1.0, 100.0]:
+        t = 10.0 + np.linspace(0, 1, 40)
+        x = np.column_stack([t ** j for j in range(1, 4)])
+        out.append((f"ridge-poly3-offset10-lam{lam:g}", x, np.cos(t) + 1e-3 * rr.standard_normal(40), {"ridge": lam}))
+    for lam in [1e-8, 1e-3]:
+        x1 = rr.standard_normal(40)
+        x = np.column_stack([x1, x1 + 1e-6 * rr.standard_normal(40), rr.standard_normal(40)])
+        out.append((f"ridge-nearduplicate-lam{lam:g}", x, x1 + 0.01 * rr.standard_normal(40), {"ridge": lam}))
+    x = rr.standard_normal((40, 3))
+    out.append(("ridge-wls-lam0.5", x, x @ [1, 2, 3] + 0.1 * rr.standard_normal(40),
+                {"ridge": 0.5, "weights": np.exp(rr.uniform(-3, 3, 40))}))
+    tt = np.linspace(0, 1, 40)
+    out.append(("ridge-gls-ar1-0.99-lam0.1", np.column_stack([tt, tt ** 2]), 1 + tt + 0.1 * rr.standard_normal(40),
+                {"ridge": 0.1, "error_cov": _ar1(40, 0.99)}))
     return out
 
 
@@ -122,6 +138,8 @@ def _reference(x, y, opts):
     Si = S ** -1 if "error_cov" in opts else mp.diag([1 / S[i, i] for i in range(n)])
     SiA = Si * A
     G = A.T * SiA
+    if "ridge" in opts:  # the penalty on the predictors (never the intercept), in the units given
+        G = G + mp.mpf(float(opts["ridge"])) * mp.diag([0] + [1] * (p - 1))
     Gi = G ** -1
     M = Gi * SiA.T                      # p x n map from b to x
     xx = M * b

@@ -18,7 +18,7 @@ from ..errors import InputError
 from ..estimate.streaming import Block
 from .inputs import Source
 
-__all__ = ["MISSING_POLICIES", "check_frequency_weights", "clean_block", "CleanBlock", "Cleaner"]
+__all__ = ["MISSING_POLICIES", "check_frequency_weights", "clean_block", "CleanBlock", "Cleaner", "Equilibrated"]
 
 #: what to do with an incomplete reference row
 MISSING_POLICIES = ("drop", "error")
@@ -193,3 +193,44 @@ class Cleaner:
         """Warn once if incomplete rows were left out."""
         if self.n_dropped and self.first_dropped is not None:
             dropped_rows_warning(self.n_dropped, self.n_read, self.first_dropped)
+
+
+class Equilibrated:
+    """The clean blocks with every column at an extreme scale multiplied by a power of two (exact).
+
+    The powers ``scale`` are read from the first block that has rows (each
+    column's largest magnitude, :func:`whiten._numerics.pow2_level_scale`) and
+    then kept for every block and every pass, so the estimators see columns of
+    order one: a column of 1e-160s or 1e+160s is fitted like a column of ones,
+    and :meth:`mean_back` / :meth:`factor_back` map the results back without
+    rounding. Columns within ``2**+-EXTREME_EXPONENT`` keep the factor 1, and when
+    every column does, the blocks pass through untouched.
+    """
+
+    def __init__(self, clean: Callable[[], Iterator[Block]]):
+        self._clean = clean
+        self.scale: np.ndarray | None = None
+
+    @property
+    def active(self) -> bool:
+        return self.scale is not None and bool(np.any(self.scale != 1.0))
+
+    def __call__(self) -> Iterator[Block]:
+        from .._numerics import pow2_level_scale
+
+        for blk in self._clean():
+            if self.scale is None:
+                if blk.values.shape[0] == 0:
+                    yield blk
+                    continue
+                self.scale = pow2_level_scale(np.max(np.abs(blk.values), axis=0))
+            if not self.active:
+                yield blk
+                continue
+            yield Block(blk.values * self.scale[None, :], blk.weights, blk.positions, blk.labels)
+
+    def mean_back(self, mean: np.ndarray) -> np.ndarray:
+        return mean if self.scale is None or not self.active else mean / self.scale
+
+    def factor_back(self, factor):
+        return factor if self.scale is None or not self.active else factor.rescaled(1.0 / self.scale)

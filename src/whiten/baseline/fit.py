@@ -7,6 +7,7 @@ the engine that claims it (:mod:`whiten._engines`).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
@@ -17,7 +18,7 @@ from .._engines import engine_for
 from ..errors import InputError
 from ..estimate.streaming import Block
 from ..linalg.factor import Factor
-from .cleaning import MISSING_POLICIES, Cleaner
+from .cleaning import MISSING_POLICIES, Cleaner, Equilibrated
 from .health import BaselineHealth, health_from_factor
 from .inputs import Source
 from .model import Baseline
@@ -160,14 +161,34 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         raise InputError(f"weights: supported with estimator='sample' only, not {estimator!r}")
     src = Source(data, columns, chunksize, index_column, wcol, progress, sep=sep, decimal=decimal)
     clean = Cleaner(src, missing, wvals)
+    eq = Equilibrated(clean)  # columns at extreme scales reach the estimators as columns of order one
     if estimator == "sample":
-        b = _fit_sample(src, clean, method)
+        b = _fit_sample(src, clean, eq, method)
     elif estimator == "shrinkage":
-        b = _fit_shrinkage(src, clean, method, shrinkage)
+        b = _fit_shrinkage(src, clean, eq, method, shrinkage)
     else:
-        b = _fit_robust(src, clean, support_fraction, seed)
+        b = _fit_robust(src, clean, eq, support_fraction, seed)
+    b = _in_data_units(b, eq)
     clean.report()
     return _with_law(b, clean, src, seed)
+
+
+def _in_data_units(b: Baseline, eq: Equilibrated) -> Baseline:
+    """A baseline fitted to equilibrated columns, mapped back to the data's units (exact)."""
+    if not eq.active:
+        return b
+    assert eq.scale is not None
+    prm = dict(b.params)
+    if "raw_mean" in prm:  # robust: the raw MCD estimate's location and log-determinant
+        prm["raw_mean"] = (np.asarray(prm["raw_mean"]) / eq.scale).tolist()
+        prm["raw_logdet"] = float(prm["raw_logdet"]) - 2.0 * float(np.sum(np.log(eq.scale)))
+    prm["equilibrated"] = {str(c): int(round(-math.log2(v))) for c, v in zip(b.columns, eq.scale) if v != 1.0}
+    f = eq.factor_back(b.factor)
+    h = b.health
+    health = health_from_factor(f, method=h.method, gram_digits_lost=h.gram_digits_lost, n_rows_read=h.n_rows_read,
+                                n_dropped=h.n_dropped, n_chunks=h.n_chunks, passes=h.passes)
+    return Baseline(mean=eq.mean_back(b.mean), factor=f, n=b.n, columns=b.columns, estimator=b.estimator,
+                    params=prm, health=health, weight_sum=b.weight_sum)
 
 
 def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Baseline:
@@ -226,10 +247,10 @@ def _common_health(f: Factor, clean: Cleaner, method: str, gram_digits: float | 
                                n_dropped=clean.n_dropped, n_chunks=clean.n_blocks, passes=passes)
 
 
-def _fit_sample(src: Source, clean: Cleaner, method: str) -> Baseline:
+def _fit_sample(src: Source, clean: Cleaner, eq: Equilibrated, method: str) -> Baseline:
     from ..estimate.sample import covariance_factor, fit_scatter
 
-    fit = fit_scatter(clean, src.names, method=method, reiterable=src.reiterable)
+    fit = fit_scatter(eq, src.names, method=method, reiterable=src.reiterable)
     f = covariance_factor(fit, src.names)
     st = fit.state
     weighted = clean.weights is not None or src.weight_column is not None
@@ -239,7 +260,7 @@ def _fit_sample(src: Source, clean: Cleaner, method: str) -> Baseline:
                     health=health, weight_sum=st.wsum)
 
 
-def _cached(clean: Cleaner, src: Source) -> tuple[Callable[[], Iterator[Block]], bool]:
+def _cached(clean: Callable[[], Iterator[Block]], src: Source) -> tuple[Callable[[], Iterator[Block]], bool]:
     """Blocks readable twice: the source itself, or (one-shot iterators) a list in memory."""
     if src.reiterable:
         return clean, True
@@ -247,7 +268,7 @@ def _cached(clean: Cleaner, src: Source) -> tuple[Callable[[], Iterator[Block]],
     return (lambda: iter(blocks)), True
 
 
-def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseline:
+def _fit_shrinkage(src: Source, clean: Cleaner, eq: Equilibrated, route: str, rule: str) -> Baseline:
     from ..estimate.sample import check_scatter
     from ..estimate.shrinkage import (
         SHRINKAGE_METHODS,
@@ -260,7 +281,7 @@ def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseli
 
     if rule not in SHRINKAGE_METHODS:
         raise InputError(f"shrinkage: expected one of {SHRINKAGE_METHODS}, got {rule!r}")
-    blocks, _ = _cached(clean, src)
+    blocks, _ = _cached(eq, src)
     # the shrunk factor is built from R; take the QR route directly (one pass)
     st, nb = accumulate(blocks(), "qr")
     if st is None or st.n == 0:
@@ -283,10 +304,11 @@ def _fit_shrinkage(src: Source, clean: Cleaner, route: str, rule: str) -> Baseli
                     params=params, health=health)
 
 
-def _fit_robust(src: Source, clean: Cleaner, support_fraction: float | None, seed: int | None) -> Baseline:
+def _fit_robust(src: Source, clean: Cleaner, eq: Equilibrated, support_fraction: float | None,
+                seed: int | None) -> Baseline:
     from ..estimate.robust import fast_mcd
 
-    blocks = list(clean())
+    blocks = list(eq())
     if not blocks or sum(b.values.shape[0] for b in blocks) == 0:
         raise InputError(f"no complete rows to fit (columns {src.names})")
     x = np.vstack([b.values for b in blocks])

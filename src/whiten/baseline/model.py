@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 
 from .. import _validate
+from .._numerics import column_norms
 from ..errors import InputError
 from ..gaussian import Gaussian
 from ..linalg.factor import Factor
@@ -153,10 +154,9 @@ class Baseline:
         columns (1 / VIF), from the factor's reported precision diagonal."""
         import pandas as pd
 
-        low = self._factor.lower
-        var = np.einsum("ij,ij->i", low, low)
-        own = 1.0 / (var * self._factor.inv_diag())  # inverse-ok: reported share of variance, not an operator
-        return pd.DataFrame({"mean": self._mean, "sd": np.sqrt(var), "own_share": own},
+        sd = column_norms(self._factor.lower.T)  # row norms of L, without overflow at extreme scales
+        own = 1.0 / (sd * self._factor.inv_sd()) ** 2  # inverse-ok: reported share of variance, not an operator
+        return pd.DataFrame({"mean": self._mean, "sd": sd, "own_share": own},
                             index=pd.Index(self._columns, name="column"))
 
     # -- sliding windows (whiten.baseline.window)

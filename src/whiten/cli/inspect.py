@@ -9,6 +9,7 @@ import warnings
 
 import numpy as np
 
+from .._numerics import column_norms
 from ..errors import NumericalWarning
 
 EPILOG = """\
@@ -38,7 +39,7 @@ def add_parser(sub) -> None:
 
 def correlation(b) -> np.ndarray:
     low = b.factor.lower
-    sd = np.sqrt(np.einsum("ij,ij->i", low, low))
+    sd = column_norms(low.T)
     # rows of L scaled to unit length give the correlation as their Gram matrix
     u = low / sd[:, None]
     return u @ u.T
@@ -109,7 +110,8 @@ def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
     # diagonal comes from triangular solves with the factor and is only reported
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", NumericalWarning)
-        own = 1.0 / (np.diag(b.cov) * b.factor.inv_diag())  # inverse-ok: reported share of variance, not an operator
+        sd_prec = column_norms(b.factor.lower.T) * b.factor.inv_sd()
+        own = 1.0 / sd_prec ** 2  # inverse-ok: reported share of variance, not an operator
     order = np.argsort(own)[: min(3, b.dim)]
     out.append("least independent sensors: " + ", ".join(
         f"{b.columns[k]} ({100 * own[k]:.3g}% of its variance its own)" for k in order))

@@ -20,6 +20,7 @@ from typing import IO, Any, cast
 
 import numpy as np
 
+from .._validate import disclose_integer_rounding
 from ..errors import InputError
 
 # each opener returns text in "rt" mode; the mapping forgets their mode-dependent overloads
@@ -41,6 +42,9 @@ def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, whe
     for j, c in enumerate(columns):
         s = df[c]
         if s.dtype.kind in "iufb":
+            if s.dtype.kind in "iu":  # pandas read integers; beyond 2**53 float64 rounds them
+                disclose_integer_rounding([(str(c), s.to_numpy())], None, name=where, first_row=first_row,
+                                          where=lambda r: _row_words(path, fmt, r, sep))
             out[:, j] = s.to_numpy(dtype=np.float64, na_value=np.nan)
             continue
         text = s.astype("string").str.strip()
@@ -53,8 +57,19 @@ def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, whe
             k = int(np.flatnonzero(bad)[0])
             raise _not_numeric(where, path, fmt, c, first_row + k, s.iloc[k], sep, decimal)
         out[:, j] = coerced.to_numpy(dtype=np.float64, na_value=np.nan)
+        long_ints = text.str.fullmatch(r"[+-]?\d{17,}", na=False).to_numpy(dtype=bool)
+        if long_ints.any():  # integer literals too long for int64: compare the text with the double
+            at = np.flatnonzero(long_ints)
+            digits = np.array([int(t) for t in text.iloc[at]], dtype=object)
+            disclose_integer_rounding([(str(c), digits)], None, name=where,
+                                      where=lambda r, at=at: _row_words(path, fmt, first_row + int(at[r]), sep))
     _refuse_infinite(out, columns, first_row, index, where, path, fmt, sep)
     return pd.DataFrame(out, index=index, columns=list(columns), copy=False)
+
+
+def _row_words(path: Path, fmt: str, row: int, sep: str) -> str:
+    line = data_line(path, fmt, row, sep)
+    return f"row {row}" + (f" (line {line})" if line is not None else "")
 
 
 def _refuse_infinite(out: np.ndarray, columns: Sequence[str], first_row: int, index: Any, where: str,

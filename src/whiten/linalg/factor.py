@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 from scipy.linalg import blas, lapack
 
-from .._numerics import EPS
+from .._numerics import EPS, column_norms, pow2_level_scale
 from .._settings import current
 from ..errors import InputError, NotPositiveDefiniteError
 from .health import FactorHealth, _PendingHealth, factor_scaled, health_of
@@ -55,7 +55,7 @@ class Factor:
     True
     """
 
-    __slots__ = ("_lower", "_lower_f", "_health", "_names", "_matrix", "_inv_diag", "_logdet")
+    __slots__ = ("_lower", "_lower_f", "_health", "_names", "_matrix", "_inv_diag", "_inv_sd", "_logdet")
 
     def __init__(self, lower: np.ndarray, health: FactorHealth | _PendingHealth, names: Sequence[str] | None = None,
                  matrix: np.ndarray | None = None, *, _copy: bool = True):
@@ -74,6 +74,7 @@ class Factor:
             matrix.setflags(write=False)
         self._matrix = matrix
         self._inv_diag: np.ndarray | None = None
+        self._inv_sd: np.ndarray | None = None
         self._logdet: float | None = None
 
     # ------------------------------------------------------------------ build
@@ -103,6 +104,31 @@ class Factor:
                 f"lower: diagonal entry {_name(names, k)} is {d[k]:.3g}; a Cholesky factor has a positive diagonal",
                 pivot=k, value=float(d[k]))
         return cls(arr, health_of(arr, jitter, 0.0, "given"), names)
+
+    def rescaled(self, c: Any) -> Factor:
+        """Factor of ``C a C`` for ``C = diag(c)``, c powers of two: rows of L times c (exact).
+
+        This is how a covariance fitted to equilibrated data (each column
+        multiplied by a power of two) is mapped back to the data's own units
+        without a rounding error, even where ``C a C`` has entries beyond the
+        float64 range (a column of 1e+160s has a variance of 1e+320): the matrix
+        is never formed. The unit-diagonal condition estimate, and with it
+        ``digits_lost``, is that of ``a`` (the unit-diagonal scaling absorbs C);
+        the unscaled ``rcond`` is estimated anew when asked for.
+        """
+        cv = np.asarray(c, dtype=np.float64).reshape(self.dim)
+        if np.all(cv == 1.0):
+            return self
+        h = self._health
+        with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+            lower = self._lower * cv[:, None]
+            a_abs = (np.abs(self._lower) @ np.abs(self._lower).T) * cv[:, None] * cv[None, :]
+            anorm = float(a_abs.sum(axis=0).max())
+            jit = float(h.jitter * np.max(cv) ** 2) if h.jitter else 0.0
+        if not math.isfinite(anorm):
+            anorm = 0.0  # the 1-norm itself is beyond float64: the unscaled rcond is reported as 0
+        pend = _PendingHealth(h.rcond_scaled, anorm, jit, h.jitter_relative, h.method)
+        return Factor(lower, pend, self._names, _copy=True)
 
     # ------------------------------------------------------------ attributes
     @property
@@ -296,13 +322,32 @@ class Factor:
         contribution denominators), never used as an operator.
         """
         if self._inv_diag is None:
-            p = self.dim
-            w = blas.dtrsm(  # inverse-ok: diagonal of the precision is reported, never applied
-                1.0, self._lower_f, np.eye(p, order="F"), side=0, lower=1)
-            d = np.einsum("ij,ij->j", w, w)
+            sd = self.inv_sd()
+            with np.errstate(over="ignore", under="ignore"):
+                d = sd * sd  # beyond float64 (inf) only where the precision itself is
             d.setflags(write=False)
             self._inv_diag = d
         return self._inv_diag
+
+    def inv_sd(self) -> np.ndarray:
+        """Square roots of the diagonal of ``(a + jitter I)^{-1}``, reported (computed once).
+
+        Entry j is ``||L^{-1} e_j||``, a column norm taken without overflow or
+        underflow (:func:`whiten._numerics.column_norms`), so it is finite even
+        for a column of 1e-160s, whose precision (about 1e+320) is not.
+        """
+        if self._inv_sd is None:
+            p = self.dim
+            w = blas.dtrsm(  # inverse-ok: diagonal of the precision is reported, never applied
+                1.0, self._lower_f, np.eye(p, order="F"), side=0, lower=1)
+            sd = column_norms(w) if self._extreme() else np.sqrt(np.einsum("ij,ij->j", w, w))
+            sd.setflags(write=False)
+            self._inv_sd = sd
+        return self._inv_sd
+
+    def _extreme(self) -> bool:
+        """True when some row of L is at a scale whose squares leave float64's normal range."""
+        return bool(np.any(pow2_level_scale(np.max(np.abs(self._lower), axis=1)) != 1.0))
 
     # -------------------------------------------------------------- updates
     def update(self, x: Any) -> Factor:
@@ -355,10 +400,18 @@ class Factor:
         and no worse conditioned, so no jitter or warning is needed.
         """
         ix = np.asarray(idx, dtype=np.intp)
-        m = self.matrix()[np.ix_(ix, ix)]
+        if self._extreme():  # form the sub-matrix from rows equilibrated by powers of two, map back exactly
+            c = pow2_level_scale(np.max(np.abs(self._lower), axis=1))[ix]
+            ls = self._lower[ix] * c[:, None]
+            m = ls @ ls.T
+        else:
+            c = None
+            m = self.matrix()[np.ix_(ix, ix)]
         lower, _, info, rc_s, anorm = factor_scaled(m)
         if info != 0:  # rounding only; cannot happen for a well-formed factor
             raise NotPositiveDefiniteError(f"sub-matrix failed to factor at pivot {info - 1}", pivot=info - 1)
         names = None if self._names is None else [self._names[i] for i in ix]
         h = _PendingHealth(rc_s, anorm, self.jitter, self._health.jitter_relative, self._health.method)
+        if c is not None:
+            return Factor(lower, h, names, _copy=False).rescaled(1.0 / c)
         return Factor(lower, h, names, matrix=m, _copy=False)

@@ -15,7 +15,7 @@ import dataclasses
 import numpy as np
 from scipy.linalg import lapack
 
-from .._numerics import digits_lost_from_rcond, digits_trusted, json_ready
+from .._numerics import digits_lost_from_rcond, digits_trusted, json_ready, pow2_level_scale
 
 __all__ = ["FactorHealth", "health_of", "factor_scaled"]
 
@@ -149,7 +149,21 @@ class _PendingHealth:
 
 
 def health_of(lower: np.ndarray, jitter: float, jitter_rel: float, method: str) -> FactorHealth:
-    """Condition estimates for a factor whose matrix is L L^T (O(p^2) beyond the product)."""
+    """Condition estimates for a factor whose matrix is L L^T (O(p^2) beyond the product).
+
+    Rows of L at extreme scales (a variance of 1e+320 or 1e-320) are first
+    multiplied by powers of two, exactly; the unit-diagonal estimate does not
+    depend on that scaling, and the unscaled ``rcond`` is reported as 0 when the
+    matrix's own 1-norm is beyond float64.
+    """
+    c = pow2_level_scale(np.max(np.abs(lower), axis=1)) if lower.size else np.ones(0)
+    if np.any(c != 1.0):
+        with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+            lc = lower * c[:, None]
+            anorm = float(((np.abs(lc) @ np.abs(lc).T) / c[:, None] / c[None, :]).sum(axis=0).max())
+        rc = _pocon(np.asfortranarray(lower), anorm) if np.isfinite(anorm) else 0.0
+        h = health_of(lc, 0.0, 0.0, method)
+        return FactorHealth(rc, h.rcond_scaled, h.digits_lost, float(jitter), float(jitter_rel), method)
     m = lower @ lower.T
     rc = _pocon(np.asfortranarray(lower), float(np.abs(m).sum(axis=0).max()))
     s = _pow2_scale(np.diag(m).copy())

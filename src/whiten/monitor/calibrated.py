@@ -46,6 +46,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from .._numerics import column_norms
 from ..errors import InputError
 from ..linalg.factor import Factor
 
@@ -236,4 +237,4 @@ def simulated_always(estimator: str | None) -> bool:
 def correlation_lower(factor: Factor) -> np.ndarray:
     """Lower factor of the correlation of ``L L^T``: rows of L divided by their norms."""
     low = factor.lower
-    return low / np.sqrt(np.einsum("ij,ij->i", low, low))[:, None]
+    return low / column_norms(low.T)[:, None]  # row norms without overflow (a 1e+160 column has ~1e+320)

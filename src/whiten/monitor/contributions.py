@@ -45,7 +45,8 @@ def whitened_and_drop(factor: Factor, d: np.ndarray) -> tuple[np.ndarray, np.nda
     with np.errstate(over="ignore", invalid="ignore"):
         z = factor.whiten(d)
         w = factor.solve_lower(z.T, trans=True).T
-        return z, w * w / factor.inv_diag()[None, :]
+        w /= factor.inv_sd()[None, :]  # (w_j / sd_j)^2 rather than w_j^2 / prec_jj: no overflow at extreme scales
+        return z, w * w
 
 
 def score_terms_into(factor: Factor, x: np.ndarray, shift: np.ndarray, d2: np.ndarray, chain: np.ndarray,
@@ -63,8 +64,8 @@ def score_terms_into(factor: Factor, x: np.ndarray, shift: np.ndarray, d2: np.nd
         np.einsum("ij,ij->i", z, z, out=d2)  # the same reduction as the general path, bit for bit
         np.multiply(z, z, out=chain)
         w = factor._solve_rows(z, trans=True)
+        w /= factor.inv_sd()[None, :]
         np.multiply(w, w, out=w)
-        w /= factor.inv_diag()[None, :]
 
 
 def drop_terms(factor: Factor, d: np.ndarray) -> np.ndarray:

@@ -388,7 +388,8 @@ class EwmaSmoother:
                 c = _c(tt, lam, "exact")
                 t2[idx] = np.einsum("ij,ij->i", v, v) / c
                 w = self.factor.solve_lower(v.T, trans=True).T  # Sigma^{-1} z_t up to the factor c_t
-                drop[idx] = w * w / self.factor.inv_diag()[None, :] / c[:, None]
+                w /= self.factor.inv_sd()[None, :]
+                drop[idx] = w * w / c[:, None]
                 top[idx] = np.asarray(self.columns, dtype=object)[np.argmax(drop[idx], axis=1)]
                 self.v = v[-1].copy()
         held_before = np.cumsum(~complete)

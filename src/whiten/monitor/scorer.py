@@ -15,6 +15,7 @@ from typing import Any
 
 import numpy as np
 
+from .._numerics import column_norms
 from .._settings import current
 from .._validate import as_float_array, as_rows
 from .._warn import warn
@@ -58,7 +59,7 @@ class _SubModel:
                 self.chain_factor = self.factor
             else:
                 self.chain_factor = full.subset(self.chain_obs)
-        self.factor.inv_diag()  # once per sub-model
+        self.factor.inv_sd()  # once per sub-model
 
 
 def _baseline_parts(baseline: Any):
@@ -120,7 +121,7 @@ class Scorer:
         self._rank = rank
         # sd_j = sqrt(S_jj) = norm of row j of L (no inverse involved)
         low = self.factor.lower
-        self.sd = np.sqrt(np.einsum("ij,ij->i", low, low))
+        self.sd = column_norms(low.T)  # without overflow or underflow at extreme scales
         self._cache: dict[bytes, _SubModel] = {}
         # rows the fit saw (a robust fit's n counts only the rows it kept): the asymptotic switch's m
         self._m_fit = int((getattr(baseline, "params", None) or {}).get("n_total", self.m or 0))

@@ -37,7 +37,7 @@ from ..linalg.qr import tri_solve
 from .design import Design
 from .solve import Solution, refinement_verdict
 
-__all__ = ["refine_given", "data_sensitivity", "whitening_kind"]
+__all__ = ["refine_given", "data_sensitivity", "whitening_kind", "sensitivity_sums"]
 
 
 def _in_memory(design: Any) -> bool:
@@ -147,7 +147,10 @@ def data_sensitivity(design: Any, s: np.ndarray, sol: Solution) -> float | None:
     Cost O(n p^2) (O(n^2 p) with an error covariance): the p x n map
     ``R^{-1} Q^T L^{-1}`` is formed once for this estimate and not used for anything else.
     """
-    if not _in_memory(design) or sol.var_rows is not None or not sol.cols:
+    if not _in_memory(design):
+        gathered = getattr(design, "sensitivity", None)  # an engine that summed the blocks where they lie
+        return None if gathered is None or sol.var_rows is not None else float(gathered)
+    if sol.var_rows is not None or not sol.cols:
         return None
     cols = sol.cols
     kind = whitening_kind(design)
@@ -199,33 +202,39 @@ def _sensitivity_by_blocks(design: Any, s: np.ndarray, sol: Solution, kind: str,
     xs = sol.x
     p = len(cols)
     c = tri_solve(sol.r, tri_solve(sol.r, np.eye(p), trans=True))  # inverse-ok: reported bound only
-    absx = np.abs(xs)
     icept = cols.index(0) if design.intercept and 0 in cols else None
     near = np.zeros(p)
     at_v = np.zeros(p)
     for a0 in range(0, design.n, rows):
         b0 = min(a0 + rows, design.n)
         a = design.raw_rows(a0, b0)[:, cols] * s[cols][None, :]
-        y = design.y[a0:b0]
-        r = y - a @ xs
+        w = None
         if kind == "weights":
             w = design.weights[a0:b0] if design.weights is not None else design.sqrt_w[a0:b0] ** 2
-            aw = a * w[:, None]
-            v = w * r
-            cov_term: Any = np.abs(r)
-        else:
-            aw, v, cov_term = a, r, 0.0
-        m = tri_solve(sol.r, tri_solve(sol.r, aw.T, trans=True))  # inverse-ok: reported bound only
-        absa = np.abs(a)
-        if icept is not None:
-            absa[:, icept] = 0.0   # the column of ones is not a measured datum
-        near += np.abs(m) @ (absa @ absx + np.abs(y) + cov_term)
-        at_v += absa.T @ np.abs(v)
+        dn, dv = sensitivity_sums(a, design.y[a0:b0], w, xs, sol.r, icept)
+        near += dn
+        at_v += dv
     t = near + np.abs(c) @ at_v
     xn = float(np.max(np.abs(xs)))
     if not xn > 0:
         return math.inf
     return float(np.max(t)) / xn
+
+
+def sensitivity_sums(a: np.ndarray, y: np.ndarray, w: np.ndarray | None, xs: np.ndarray, r: np.ndarray,
+                     icept: int | None) -> tuple[np.ndarray, np.ndarray]:
+    """One block's share ``(|M| (|A||x| + |y| + |r|_w), |A|^T |v|)`` of the sensitivity sums (they add over
+    blocks): ``a`` the fitted columns scaled, ``w`` weights or None, ``r`` the fit's R. Shared with dask."""
+    res = y - a @ xs
+    if w is not None:
+        aw, v, cov_term = a * w[:, None], w * res, np.abs(res)
+    else:
+        aw, v, cov_term = a, res, 0.0
+    m = tri_solve(r, tri_solve(r, aw.T, trans=True))  # inverse-ok: reported bound only
+    absa = np.abs(a)
+    if icept is not None:
+        absa[:, icept] = 0.0   # the column of ones is not a measured datum
+    return np.abs(m) @ (absa @ np.abs(xs) + np.abs(y) + cov_term), absa.T @ np.abs(v)
 
 
 def sensitivity_digits(rel: float) -> float:
@@ -288,12 +297,15 @@ def statements(design, sol: Solution, s: np.ndarray, cond_fit: float, tan_t: flo
     bound = EPS * rel if rel is not None else EPS * (cond_fit + cond_fit ** 2 * tan_t)
     cov = _cov_health(design, sol, s)
     kind = whitening_kind(design)
+    probed = sol.steps == 0 and sol.error_estimate is not None
     if sol.steps > 0:
         lc = sol.last_corr if math.isfinite(sol.last_corr) else 1.0
         err = EPS if (sol.converged and lc <= 2 * EPS) else max(lc, EPS)
+    elif probed:  # one correction against the data as given measures the whole error (x2, plus the solver floor)
+        err = 2.0 * float(sol.error_estimate or 0.0) + EPS * cond_fit
     else:
         err = bound
-    given = sol.method.endswith("+given")
+    given = sol.method.endswith("+given") or probed
     if kind == "weights" and not given and sol.steps > 0:
         err += bound           # sqrt(w) and the products: at most eps per whitened entry
     if kind == "matrix" and not given:

@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .._validate import as_float_array, check_scale
+from .._validate import as_float_array
 from ..errors import InputError
 from ..linalg import cholesky
 
@@ -113,14 +113,11 @@ def prepare_design(x, y, intercept, weights, error_cov) -> Design:
     if INTERCEPT_NAME in names:
         raise InputError(f"X: a column is named {INTERCEPT_NAME!r}, which whiten reserves for the intercept; "
                          "rename it, or pass intercept=False")
-    check_scale(xv, names, name="X")
     yv, _, _ = as_float_array(y, name="y", ndim=(1, 2))
     if yv.ndim == 2:
         if yv.shape[1] != 1:
             raise InputError(f"y: expected one response column, got shape {yv.shape}")
         yv = yv[:, 0]
-    yname = getattr(y, "name", None)
-    check_scale(yv[:, None], [str(yname) if yname is not None else "y"], name="y")
     n = xv.shape[0]
     if yv.shape[0] != n:
         raise InputError(f"y: has {yv.shape[0]} rows but X has {n}; they must describe the same rows")

@@ -17,7 +17,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .._numerics import EPS, json_number
+from .._numerics import EPS, column_norms, json_number
 from ..linalg.qr import tri_solve
 
 __all__ = ["CollinearityReport", "collinearity_report", "vif_from_r", "describe_dependence"]
@@ -110,7 +110,7 @@ def collinearity_report(r: np.ndarray, names: list[str], *, exact_tol: float,
     Cost O(p^3): column norms of R, an SVD of the p x p scaled R.
     """
     p = r.shape[1]
-    norms = np.sqrt(np.einsum("ij,ij->j", r, r))
+    norms = column_norms(r)
     safe = np.where(norms > 0, norms, 1.0)
     rn = r / safe[None, :]
     _, s, vt = np.linalg.svd(rn)
@@ -161,7 +161,7 @@ def vif_from_r(r_kept: np.ndarray, n_pred: int) -> np.ndarray:
     correlation matrix, obtained by one triangular solve.
     """
     r22 = r_kept[-n_pred:, -n_pred:]
-    norms = np.sqrt(np.einsum("ij,ij->j", r22, r22))
+    norms = column_norms(r22)
     if np.any(norms == 0):
         out = np.full(n_pred, np.inf)
         return out

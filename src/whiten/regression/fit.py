@@ -31,12 +31,14 @@ larger than such rounding), and says so in ``health.notes``.
 
 from __future__ import annotations
 
+import dataclasses
+import math
 from typing import Any
 
 import numpy as np
 
 from .. import _engines
-from .._numerics import EPS
+from .._numerics import EPS, column_norms, pow2_level_scale
 from ..errors import InputError
 from ..linalg.qr import pow2_column_scale
 from .accuracy import refine_given
@@ -165,10 +167,55 @@ def fit_linear(
         return engine.fit_linear(X, y, intercept=intercept, weights=weights, rank_policy=rank_policy,
                                rank_tol=rank_tol, refine=refine)
     design = prepare_design(X, y, intercept, weights, error_cov)
-    if ridge is not None:
-        return fit_ridge(design, ridge, standardize=standardize, grid=ridge_grid)
-    if standardize:
+    if ridge is None and standardize:
         raise InputError("standardize=True applies to ridge fits only; pass ridge=... or leave it False")
+    # a response at an extreme scale is equilibrated by a power of two (exact) and the fit mapped back,
+    # so its residual sum of squares is formed from numbers of order one
+    cy = float(pow2_level_scale(np.array([float(np.max(np.abs(design.y))) if design.n else 0.0]))[0])
+    work = design if cy == 1.0 else dataclasses.replace(design, y=design.y * cy)
+    if ridge is not None:
+        fit = fit_ridge(work, ridge, standardize=standardize, grid=ridge_grid)
+    else:
+        fit = _fit_design(work, rank_policy, rank_tol, method, refine)
+    return fit if cy == 1.0 else _response_units(fit, cy, design)
+
+
+def _response_units(fit: LinearFit, cy: float, design) -> LinearFit:
+    """The fit of ``cy * y`` (cy a power of two) mapped back to the units of ``y``, exactly where a
+    figure is linear in y; the log-likelihood and information criteria shift by ``n log cy``."""
+    shift = fit.nobs * math.log(cy)
+    h = fit.health
+    note = f"the response was equilibrated by 2**{int(round(math.log2(cy)))} (exact) and the results mapped back"
+    ridge = fit.ridge
+    if ridge is not None:
+        with np.errstate(over="ignore", under="ignore"):
+            ridge = dataclasses.replace(
+                ridge, paths=None if ridge.paths is None else ridge.paths / cy,
+                scores=None if ridge.scores is None else ridge.scores / (cy * cy))
+    with np.errstate(over="ignore"):
+        coef = fit.coef / cy
+    over = np.flatnonzero(np.isfinite(fit.coef) & ~np.isfinite(coef))
+    if over.size:
+        names = ", ".join(repr(fit.names[j]) for j in over)
+        raise InputError(f"a scale problem, not bad data: the coefficient(s) of {names} exceed the float64 range "
+                         "(about 1.8e308) in the units given; express the response or those columns in other units "
+                         "and fit again")
+    return dataclasses.replace(
+        fit, coef=_ro(coef), stderr=_ro(fit.stderr / cy), residual_sd=fit.residual_sd / cy,
+        loglik=fit.loglik + shift, aic=fit.aic - 2 * shift, bic=fit.bic - 2 * shift,
+        fitted=_ro(fit.fitted / cy), residuals=_ro(fit.residuals / cy), ridge=ridge,
+        health=dataclasses.replace(h, notes=tuple(h.notes) + (note,)),
+        _wresid=None if fit._wresid is None else fit._wresid / cy, _design=design)
+
+
+def _ro(a: np.ndarray) -> np.ndarray:
+    a = np.array(a, dtype=np.float64)
+    a.setflags(write=False)
+    return a
+
+
+def _fit_design(design, rank_policy: str, rank_tol: float | None, method: str, refine: Any) -> LinearFit:
+    """The (unpenalised) fit of a prepared design."""
     n, p = design.n, design.p
     tol = 10.0 * max(n, p) * EPS if rank_tol is None else float(rank_tol)
     if not 0 < tol < 1:
@@ -183,11 +230,15 @@ def fit_linear(
         s, r_full, aside, sol = blocked_solution(design, tol, rank_policy, 3, refine, notes)
     if sol is None:
         a, b = design.whitened()
-        norms = np.sqrt(np.einsum("ij,ij->j", a, a))
+        norms = column_norms(a)
         s = pow2_column_scale(norms)
         path = "blocked-tsqr->householder" if use_blocked else "householder"
         r_full, aside, sol = dense_solution(a, b, s, tol, rank_policy, names, MAX_REFINE, refine is not False,
                                              notes, path=path)
         if refine is not False:
             sol = refine_given(design, s, sol, MAX_REFINE)
+        else:  # measure, without applying, how far the unrefined solution is from the data as given
+            probe = refine_given(design, s, sol, 1)
+            if probe is not sol and math.isfinite(probe.last_corr):
+                sol.error_estimate = float(probe.last_corr)
     return assemble(design, sol, s, r_full, aside, tol, rank_policy)

@@ -15,6 +15,7 @@ import math
 import numpy as np
 from scipy import stats
 
+from .._numerics import column_norms
 from .._settings import current
 from .._warn import warn
 from ..errors import ConditioningWarning, InputError, RankDeficiencyWarning
@@ -175,7 +176,7 @@ def assemble(design: Design, sol: Solution, s, r_full, aside, tol, policy, *, rs
 
 def scaled_condition(r: np.ndarray) -> float:
     """2-norm condition number of ``r`` with its columns scaled to unit length (Belsley's convention)."""
-    norms = np.sqrt(np.einsum("ij,ij->j", r, r))
+    norms = column_norms(r)
     return condition_2(r / np.where(norms > 0, norms, 1.0)[None, :])
 
 

@@ -28,19 +28,23 @@ import math
 import numpy as np
 from scipy import stats
 
-from .._numerics import EPS
+from .._numerics import EPS, column_norms
 from .._warn import warn
 from ..errors import InputError, NumericalWarning
+from ..linalg import compensated
 from ..linalg.qr import (
     condition_2,
     householder_thin,
     pow2_column_scale,
+    qr_r,
     sequential_dependence,
+    tri_solve,
 )
+from .accuracy import data_sensitivity, sensitivity_digits, whitening_kind
 from .diagnostics import collinearity_report, vif_from_r
 from .inference import fitted_values, gaussian_loglik, read_only, scaled_condition
 from .results import FitHealth, LinearFit, RidgeInfo
-from .solve import MAX_REFINE, refine_dense
+from .solve import MAX_REFINE, Solution, refine_dense, refinement_verdict
 
 __all__ = ["fit_ridge", "CRITERIA"]
 
@@ -105,8 +109,10 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     bc = _project_out(b, w1) if w1 is not None else b.copy()
     k = xc.shape[1]
     if standardize:
-        d = np.sqrt(np.einsum("ij,ij->j", xc, xc) / n)
-        bad = np.flatnonzero(d == 0)
+        d = column_norms(xc) / math.sqrt(n)
+        # scale-free: constant when the centred spread is rounding of the column's own level
+        level = np.max(np.abs(xw), axis=0) if n else np.zeros(k)
+        bad = np.flatnonzero(d <= 8 * EPS * level)
         if bad.size:
             raise InputError(f"ridge: predictor {design.names[bad[0]]!r} is constant; it cannot be standardized")
     else:
@@ -160,7 +166,7 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     # fixed penalty: augmented least squares, Householder QR + refinement
     aug = np.vstack([xs, math.sqrt(lam) * np.eye(k)]) if lam > 0 else xs
     baug = np.concatenate([bc, np.zeros(k)]) if lam > 0 else bc
-    norms = np.sqrt(np.einsum("ij,ij->j", aug, aug))
+    norms = column_norms(aug)
     sc = pow2_column_scale(norms)
     augs = aug * sc[None, :]
     q, r = householder_thin(augs)
@@ -192,7 +198,7 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     adj = 1 - (1 - r2) * (n - int(icpt)) / dof if dof > 0 else math.nan
     ll = gaussian_loglik(design, rss, n)
     # unpenalised diagnostics of the design
-    s_full = pow2_column_scale(np.sqrt(np.einsum("ij,ij->j", a, a)))
+    s_full = pow2_column_scale(column_norms(a))
     _, r_full = householder_thin(a * s_full[None, :])
     tol = 10 * max(n, design.p) * EPS
     coll = collinearity_report(r_full, design.all_names, exact_tol=tol)
@@ -200,17 +206,17 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     if icpt and not sequential_dependence(r_full, tol):
         vif = vif_from_r(r_full, k) if k > 1 else np.ones(1)
     cond_aug = scaled_condition(r)
-    bound = EPS * cond_aug * (1 + cond_aug * math.sqrt(rss) / max(float(np.linalg.norm(bc - e_w)), 1e-300))
-    digits = float(min(15.9, max(0.0, -math.log10(bound)))) if bound > 0 else 15.9
-    lc = corr if math.isfinite(corr) else 1.0
-    solved = 15.6 if conv and lc <= 2 * EPS else float(min(15.6, max(0.0, -math.log10(max(lc, EPS)))))
+    coef, bound, solve_err, steps2 = _two_statements(design, a, b, coef, lam, d, xc, xw, bool(standardize))
+    steps += steps2
+    digits, solved = sensitivity_digits(bound), sensitivity_digits(solve_err)
     health = FitHealth(
         method="ridge-augmented-householder", condition_number=float(coll.condition_indices[-1]),
         condition_number_raw=condition_2(r_full / s_full[None, :]), condition_number_fitted=cond_aug,
         error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=steps,
         refinement_converged=bool(conv), last_correction=corr, residual_arithmetic="compensated",
         rank=design.p, n_columns=design.p, rank_tol=tol, set_aside=(), dependencies=(),
-        notes=(f"penalty {lam:.6g} on {'standardized ' if standardize else ''}predictors; intercept unpenalised",))
+        notes=(f"penalty {lam:.6g} on {'standardized ' if standardize else ''}predictors; intercept unpenalised",),
+        solve_error=solve_err)
     info = RidgeInfo(penalty=lam, criterion=kind, standardized=bool(standardize), effective_dof=edf,
                           grid=info_grid, scores=info_scores, paths=info_paths, at_edge=at_edge)
     fitted = fitted_values(design, list(range(design.p)), coef)
@@ -229,3 +235,71 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
         weighted="gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none"),
         ridge=info, _r=None, _scale=None, _fit_cols=tuple(range(design.p)), _q=None, _wresid=e_w,
         _design=design)
+
+
+def _two_statements(design, a, b, coef, lam, d, xc, xw, standardize):
+    """Refinement in the data as given, and the two statements: ``(coef, bound, solve error, steps)``.
+
+    The coefficients of the centred, standardized problem are refined against the
+    whole penalised problem ``min ||A x - b||^2 + lambda ||P^(1/2) x||^2`` (A the
+    design with its intercept, whitened by the weights or error covariance; P the
+    penalty on the predictors in the units fitted) by corrected semi-normal
+    equations with compensated residuals (Björck, 1987), so the roundings of the
+    centring and the standardization do not reach the answer.
+
+    (a) is the componentwise first-order bound of the least-squares fits
+    (:func:`whiten.regression.accuracy.data_sensitivity`) with ``C = G^{-1}``,
+    ``G = A^T S^{-1} A + lambda P``: the derivative of ``x = G^{-1} A^T S^{-1} b``
+    has the same form as for an unpenalised fit, so the same sums apply with the R
+    of ``[A; sqrt(lambda) P^(1/2)]``. With ``standardize``, the penalty's scales
+    ``d_j`` are data too; their first-order change adds ``|C| (2 lambda d |dd| |x|)``.
+    The penalty is taken as given (a criterion's choice of it is not differentiated).
+    (b) is the last correction, plus the rounding of the penalty rows, plus the
+    whitening's roundings as for WLS/GLS fits.
+    """
+    p = design.p
+    k0 = int(design.intercept)
+    s = pow2_column_scale(column_norms(a))
+    pen = np.zeros(p)
+    pen[k0:] = d * s[k0:]
+    aug = np.vstack([a * s[None, :], math.sqrt(lam) * np.diag(pen)]) if lam > 0 else a * s[None, :]
+    baug = np.concatenate([b, np.zeros(p)]) if lam > 0 else b
+    r = qr_r(aug)[:p]
+    r = r * np.where(np.diag(r) < 0, -1.0, 1.0)[:, None]
+    xs = coef / s
+    steps, conv, corr, prev = 0, False, math.nan, math.inf
+    for _ in range(MAX_REFINE):
+        res = compensated.residual(aug, xs, baug, None, "compensated")
+        dx = tri_solve(r, tri_solve(r, compensated.gradient(aug, res, "compensated"), trans=True))
+        xs = xs + dx
+        steps += 1
+        corr, stop, conv = refinement_verdict(xs, dx, prev)
+        if stop:
+            break
+        prev = corr
+    sol = Solution(list(range(p)), xs, r, np.zeros(0), None, steps, bool(conv), corr, "compensated", "ridge", [])
+    rel = data_sensitivity(design, s, sol)
+    if rel is None:  # pragma: no cover - ridge fits are in memory
+        rel = math.inf
+    c_abs = np.abs(tri_solve(r, tri_solve(r, np.eye(p), trans=True)))  # inverse-ok: reported bound only
+    xn = float(np.max(np.abs(xs)))
+    pen_term = np.zeros(p)
+    pen_term[k0:] = lam * pen[k0:] ** 2 * np.abs(xs[k0:])    # G's penalty part, times |x|
+    if standardize and lam > 0:
+        n = max(design.n, 1)
+        dd = 2.0 * EPS * np.einsum("ij,ij->j", np.abs(xc), np.abs(xw)) / (n * d)   # |d d_j|, absolute
+        g = np.zeros(p)
+        g[k0:] = 2.0 * lam * pen[k0:] * (dd * s[k0:]) * np.abs(xs[k0:])
+        rel += float(np.max(c_abs @ g)) / (EPS * xn) if xn > 0 else math.inf
+    bound = EPS * rel
+    lc = corr if math.isfinite(corr) else 1.0
+    err = EPS if (conv and lc <= 2 * EPS) else max(lc, EPS)
+    if xn > 0:
+        err += 3 * EPS * float(np.max(c_abs @ pen_term)) / xn   # sqrt(lambda) * d_j * s_j rounds
+    kind = whitening_kind(design)
+    if kind == "weights":
+        err += bound                   # sqrt(w) A rounds once more
+    elif kind == "matrix":
+        h = design.factor.health
+        err += bound * math.sqrt(1.0 / h.rcond_scaled if h.rcond_scaled > 0 else math.inf)
+    return xs * s, bound, err, steps

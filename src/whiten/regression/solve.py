@@ -29,7 +29,7 @@ import math
 
 import numpy as np
 
-from .._numerics import EPS
+from .._numerics import EPS, column_norms
 from .._settings import current
 from ..linalg import compensated
 from ..linalg.qr import (
@@ -73,6 +73,7 @@ class Solution:
     method: str         # what ran (becomes FitHealth.method)
     notes: list
     var_rows: np.ndarray | None = None   # minimum-norm: rows whose squared norms are the variances
+    error_estimate: float | None = None  # refine=False: one unapplied correction against the data as given
 
 
 def refinement_verdict(x: np.ndarray, dx: np.ndarray, prev: float) -> tuple[float, bool, bool]:
@@ -230,7 +231,7 @@ def solution_from_r(raug, p, path, tol, policy, max_steps, refine, notes, make_p
     the rows (in memory, or on a dask cluster). Returns ``(s, r_full, aside,
     solution or None)``; None hands over to the dense Householder route.
     """
-    norms = np.sqrt(np.einsum("ij,ij->j", raug[:, :p], raug[:, :p]))
+    norms = column_norms(raug[:, :p])
     s = pow2_column_scale(norms)
     # power-of-two column scaling is exact, so R of the scaled design is R * s
     r_full = raug[:p, :p] * s[None, :]

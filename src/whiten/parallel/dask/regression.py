@@ -12,7 +12,8 @@ import numpy as np
 from ..._numerics import EPS
 from ...errors import InputError
 from ...linalg import compensated
-from ...linalg.qr import r_of
+from ...linalg.qr import r_of, tri_solve
+from ...regression.accuracy import sensitivity_sums
 from ...regression.design import INTERCEPT_NAME
 from ...regression.inference import assemble
 from ...regression.solve import MAX_REFINE, RANK_POLICIES, solution_from_r
@@ -39,6 +40,7 @@ class _DaskDesign:
         self.sqrt_w = None
         self.sum_log_sqrt_w = 0.0
         self.factor = None
+        self.sensitivity: float | None = None  # the data statement's sums, gathered on the workers
 
     @property
     def n(self) -> int:
@@ -105,6 +107,18 @@ def _pass_block(xb, yb, intercept, offset, names, kept, sw, x, kind, want_grad, 
     rb = yb_ - ab @ x if kind == "none" else compensated.residual(ab, x, yb_, None, kind)
     grad = (compensated.gradient(ab, rb, kind) if kind != "none" else ab.T @ rb) if want_grad else None
     return grad, float(rb @ rb)
+
+
+def _sens_block(xb, yb, intercept, offset, kept, sw, x, r, icept, wb=None):
+    """This block's share of the sensitivity sums (:func:`whiten.regression.accuracy.sensitivity_sums`)."""
+    xb = np.asarray(xb, dtype=np.float64)
+    a = np.column_stack([np.ones(xb.shape[0]), xb]) if intercept else xb
+    w = None if wb is None else _sqrt_weights(wb, offset) ** 2
+    return sensitivity_sums(a[:, kept] * sw[None, :], np.asarray(yb, dtype=np.float64).reshape(-1), w, x, r, icept)
+
+
+def _add_pair(a, b):
+    return a[0] + b[0], a[1] + b[1]
 
 
 def _add_pass(a, b):
@@ -248,6 +262,15 @@ def fit_linear(X: Any, y: Any, *, intercept: bool = True, weights: Any = None, r
         raise InputError("refine=True: the design is too ill-conditioned for refinement on the distributed "
                          "route (scaled condition above 1e5); pass refine='auto' to keep the TSQR solution, or "
                          "fit on the computed arrays")
+    # the data statement: the componentwise sums, one more pass where the blocks lie
+    icept = sol.cols.index(0) if intercept and 0 in sol.cols else None
+    sw = s[sol.cols]
+    parts = [delayed(_sens_block)(a, b, intercept, o, sol.cols, sw, sol.x, sol.r, icept, w)
+             for a, b, o, w in zip(xb, yb, offsets, wb)]
+    near, at_v = tree_reduce(parts, _add_pair).compute()
+    c = tri_solve(sol.r, tri_solve(sol.r, np.eye(len(sol.cols)), trans=True))  # inverse-ok: reported bound only
+    xn = float(np.max(np.abs(sol.x))) if sol.x.size else 0.0
+    design.sensitivity = float(np.max(near + np.abs(c) @ at_v)) / xn if xn > 0 else math.inf
     resid = sol.wresid
     fitted = ya - resid
     # _DaskDesign has every Design attribute that assemble reads when rss= and vectors= are given (not the
