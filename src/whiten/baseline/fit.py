@@ -172,7 +172,7 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
 
 def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Baseline:
     """Attach the simulated law of a new row's d2 where no exact law exists, and check the screen."""
-    from ..monitor.calibrated import ASYMPTOTIC_CELLS, correlation_lower, simulate_law, simulated_always
+    from ..monitor.calibrated import asymptotic_serves, correlation_lower, simulate_law
 
     prm = b.params
     settings: dict = {}
@@ -193,7 +193,7 @@ def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Bas
             settings["weights"] = w[w > 0]
             m = int(settings["weights"].size)
     law = None
-    if need and (m * b.dim <= ASYMPTOTIC_CELLS or simulated_always(b.estimator)):
+    if need and not asymptotic_serves(b.estimator, m, b.dim):
         law = simulate_law(b.estimator, correlation_lower(b.factor), m, settings=settings, seed=seed)
         if law.flagged_mean is not None:
             prm = dict(prm, flagged_expected_clean=law.flagged_mean, flagged_expected_se=law.flagged_se)

@@ -49,11 +49,13 @@ import numpy as np
 from ..errors import InputError
 from ..linalg.factor import Factor
 
-__all__ = ["SimulatedLaw", "simulate_law", "TAILS", "ASYMPTOTIC_CELLS", "SIM_CELLS", "ROBUST_STARTS", "LIMIT_SEED",
-           "simulated_always"]
+__all__ = ["SimulatedLaw", "simulate_law", "TAILS", "ASYMPTOTIC_CELLS", "ASYMPTOTIC_ROBUST_RATIO", "SIM_CELLS",
+           "ROBUST_STARTS", "LIMIT_SEED", "simulated_always", "asymptotic_serves"]
 
 TAILS = tuple(float(t) for t in np.geomspace(0.5, 1e-4, 25))  #: tail probabilities of the table
 ASYMPTOTIC_CELLS = 200_000  #: above m * p reference cells the sample law with m rows serves
+#: robust baselines also need m >= this many rows per sensor before the sample law serves (see asymptotic_serves)
+ASYMPTOTIC_ROBUST_RATIO = 1000
 SIM_CELLS = 10_000_000  #: shrinkage above ASYMPTOTIC_CELLS: draws x m x p kept near this
 ROBUST_STARTS = 10  #: random starts of the simulated robust refits
 LIMIT_SEED = 20050419  #: default seed of the simulation (fixed: limits are reproducible)
@@ -226,6 +228,25 @@ def simulate_law(estimator: str, corr_lower: np.ndarray, m: int, *, settings: di
     return SimulatedLaw(p=p, m=int(m), procedure=what, tails=tuple(float(t) for t in tails),
                         quantiles=tuple(float(v) for v in qs), mc_se=tuple(float(v) for v in se),
                         draws=draws, rows_per_draw=k, seed=seed, flagged_mean=fm, flagged_se=fse)
+
+
+def asymptotic_serves(estimator: str | None, m: int, p: int) -> bool:
+    """True when the sample estimator's F law with m rows serves as the (asymptotic) law of a new row.
+
+    Never for shrinkage (:func:`simulated_always`). Weighted sample baselines: above
+    :data:`ASYMPTOTIC_CELLS` reference cells. Robust baselines also need ``m >= ASYMPTOTIC_ROBUST_RATIO * p``:
+    the reweighted MCD is less efficient than the sample covariance, and its extra error is a multiple of p / m
+    that the cell count alone does not bound (at p = 50, m = 4001, above the cell threshold, the F law gave a
+    false-alarm rate of 1.07% for 1%; ``tests/monitor/test_asymptotic_switch.py`` measures the excess).
+
+    Examples
+    --------
+    >>> asymptotic_serves("robust", 4001, 50), asymptotic_serves("robust", 20001, 10)
+    (False, True)
+    """
+    if simulated_always(estimator) or m * p <= ASYMPTOTIC_CELLS:
+        return False
+    return estimator != "robust" or m >= ASYMPTOTIC_ROBUST_RATIO * p
 
 
 def simulated_always(estimator: str | None) -> bool:
