@@ -12,6 +12,7 @@ from .errors import (
     ConditioningWarning,
     InputError,
     JitterWarning,
+    LimitAccuracyWarning,
     ModelFileError,
     NotPositiveDefiniteError,
     NumericalWarning,
@@ -68,7 +69,7 @@ __all__ = [
     "__version__",
     "get_options", "options", "set_options",
     "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
-    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning",
+    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning", "LimitAccuracyWarning",
     "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
     "Gaussian", "RowEvaluation",
     # regression

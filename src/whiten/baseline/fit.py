@@ -200,6 +200,15 @@ def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Bas
     out = Baseline(mean=b.mean, factor=b.factor, n=b.n, columns=b.columns, estimator=b.estimator, params=prm,
                    health=b.health, weight_sum=b.weight_sum, limit_law=law)
     _screen_warning(out)
+    if law is not None:
+        from .._warn import warn
+        from ..errors import LimitAccuracyWarning
+        from ..monitor.calibrated import ACCURATE_ROWS_PER_SENSOR, accuracy_note
+
+        note = accuracy_note(b.estimator, m, b.dim)
+        if note and m < ACCURATE_ROWS_PER_SENSOR * b.dim:
+            warn(LimitAccuracyWarning, f"the {b.estimator} baseline's simulated alarm limit is {note}; prefer "
+                 f"at least {ACCURATE_ROWS_PER_SENSOR * b.dim} reference rows, or the sample estimator (exact law)")
     return out
 
 
