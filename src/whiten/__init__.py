@@ -69,7 +69,8 @@ __all__ = [
     "__version__",
     "get_options", "options", "set_options",
     "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
-    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning", "LimitAccuracyWarning",
+    "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning",
+    "LimitAccuracyWarning",
     "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
     "Gaussian", "RowEvaluation",
     # regression
