@@ -13,6 +13,7 @@ from .errors import (
     InputError,
     IntegerPrecisionWarning,
     JitterWarning,
+    LimitAccuracyWarning,
     ModelFileError,
     NotPositiveDefiniteError,
     NumericalWarning,
@@ -70,7 +71,7 @@ __all__ = [
     "get_options", "options", "set_options",
     "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
     "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning",
-    "IntegerPrecisionWarning",
+    "IntegerPrecisionWarning", "LimitAccuracyWarning",
     "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
     "Gaussian", "RowEvaluation",
     # regression

@@ -93,3 +93,16 @@ class WeakScreenWarning(UserWarning):
 
 
 __all__.append("WeakScreenWarning")
+
+
+class LimitAccuracyWarning(UserWarning):
+    """The stated false-alarm rate of a simulated limit is approximate at this number of reference rows.
+
+    Raised for shrinkage and robust baselines with fewer than ``10 p`` reference rows: their simulated law is
+    a parametric bootstrap drawn from the *fitted* correlation, and for these estimators the law of a new
+    row's d2 depends on the true correlation, so the bootstrap world's law differs from the truth's. The
+    message states the measured range of the actual rate (see the monitoring guide).
+    """
+
+
+__all__.append("LimitAccuracyWarning")

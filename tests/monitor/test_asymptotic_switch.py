@@ -53,3 +53,50 @@ def test_false_alarm_rate_just_above_the_asymptotic_threshold(estimator):
     limit_se = math.sqrt(np.mean(np.square(mc)) / REPEATS) if mc else 0.0
     tol = 4 * math.sqrt(binom ** 2 + batch ** 2 + limit_se ** 2)
     assert abs(r.mean() - ALPHA) < tol, (estimator, r, tol)
+
+
+def test_the_robust_switch_depends_on_rows_per_sensor():
+    """The rule itself: above the cell count a robust baseline also needs m >= ASYMPTOTIC_ROBUST_RATIO p (the case
+    that broke the cell-count rule, p = 50, m = 4001, is simulated now); shrinkage is never asymptotic."""
+    from whiten.monitor.calibrated import ASYMPTOTIC_ROBUST_RATIO, asymptotic_serves
+
+    assert not asymptotic_serves("robust", 4001, 50) and asymptotic_serves("sample", 4001, 50)
+    assert asymptotic_serves("robust", ASYMPTOTIC_ROBUST_RATIO * 50, 50)
+    assert not asymptotic_serves("robust", ASYMPTOTIC_ROBUST_RATIO * 50 - 1, 50)
+    assert asymptotic_serves("robust", M, P) and not asymptotic_serves("robust", ASYMPTOTIC_CELLS // P, P)
+    assert not asymptotic_serves("shrinkage", 10**7, P)
+
+
+@pytest.mark.slow
+def test_robust_excess_over_the_f_law_at_the_rows_per_sensor_threshold():
+    """At m = ASYMPTOTIC_ROBUST_RATIO p the reweighted MCD's false-alarm rate under the sample F law with m rows is
+    within 5% of alpha (and 4 s.e.), while at m = 80 p (where the cell-count rule alone switched at p = 50) it is
+    measurably above. Reference: the exact F law of the sample estimator (Tracy, Young & Mason 1992), whose rate on
+    the same reference rows and fresh rows is a control variate of known mean alpha, so the difference of the two
+    rates measures the robust estimator's excess with the baseline-to-baseline spread cancelled."""
+    from whiten.estimate.robust import fast_mcd
+    from whiten.monitor.calibrated import ASYMPTOTIC_ROBUST_RATIO
+    from whiten.monitor.limits import t2_limit
+
+    p = 5
+    rng = np.random.default_rng(2026)
+    names = [f"x{j}" for j in range(p)]
+
+    def excess(m: int, repeats: int) -> tuple[float, float]:
+        diffs = []
+        lim = float(t2_limit(ALPHA, p, m))
+        for _ in range(repeats):
+            a = np.eye(p) + 0.3 * rng.normal(size=(p, p))
+            x = rng.normal(size=(m, p)) @ a
+            res = fast_mcd(x, names, seed=int(rng.integers(2**31)))
+            y = rng.normal(size=(FRESH, p)) @ a
+            robust = float((res.factor.quad(y, shift=res.mean) > lim).mean())
+            sample = whiten.Gaussian(x.mean(axis=0), np.cov(x.T)).factor.quad(y, shift=x.mean(axis=0))
+            diffs.append(robust - float((sample > lim).mean()))
+        d = np.array(diffs) / ALPHA
+        return float(d.mean()), float(d.std(ddof=1) / math.sqrt(repeats))
+
+    at, se = excess(ASYMPTOTIC_ROBUST_RATIO * p, 6)
+    assert abs(at) < max(0.05, 4 * se), (at, se)
+    below, se_b = excess(80 * p, 10)
+    assert below > 3 * se_b and below > 0.1, (below, se_b)

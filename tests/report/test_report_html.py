@@ -275,3 +275,33 @@ def test_monitoring_report_edge_cases(filler_model, filler_batch):
     page = check_self_contained(monitoring_report(blank, filler_model).to_html())
     assert page.tiles["alarms"]["value"] == "0" and page.tiles["partial"]["value"] == "2"
     assert page.images == [] and "worst-rows" not in page.tables
+
+
+def test_monitoring_report_ewma_panel(filler_model, tmp_path):
+    """Scores made with ``ewma=`` get a drift panel: the count equals the score table's ``ewma_alarm`` column (and a
+    streamed run's digest), the chart decodes, and the caution that EWMA limits assume independent rows and known
+    parameters is on the page; scores without ``ewma=`` get no panel."""
+    rng = np.random.default_rng(44)
+    x = rng.multivariate_normal(filler_model.mean, filler_model.cov, size=300)
+    x[120:, 2] += np.linspace(0.0, 2.0, 180) * math.sqrt(filler_model.cov[2, 2])  # a slow drift of the torque
+    frame = pd.DataFrame(x, columns=filler_model.columns)
+    s = whiten.monitor.score(filler_model, frame, phase="known", alpha=0.005, ewma=0.1, ewma_arl=200)
+    n_ewma = int(s["ewma_alarm"].sum())
+    assert n_ewma >= 1
+    page = check_self_contained(monitoring_report(s, filler_model).to_html())
+    assert page.tiles["ewma-alarms"]["value"] == str(n_ewma)
+    html = monitoring_report(s, filler_model, charts=False).to_html()
+    assert "independent rows" in html and "known" in html and "Lowry" in html
+    assert len(page.images) == 3                                  # distance chart, contributions, EWMA chart
+    for png in page.png_images():
+        assert decode_png(png).shape[1] > 100
+    # a streamed run: the digest's counts, no chart
+    data = tmp_path / "drift.csv"
+    frame.to_csv(data, index=False)
+    dig = whiten.monitor.score_file(filler_model, data, tmp_path / "out.csv", phase="known", alpha=0.005,
+                                    ewma=0.1, ewma_arl=200)
+    page = check_self_contained(monitoring_report(dig, filler_model, charts=False).to_html())
+    assert page.tiles["ewma-alarms"]["value"] == str(n_ewma)
+    plain = whiten.monitor.score(filler_model, frame, phase="known", alpha=0.005)
+    page = check_self_contained(monitoring_report(plain, filler_model, charts=False).to_html())
+    assert "ewma-alarms" not in page.tiles and "EWMA" not in monitoring_report(plain, filler_model).to_html()

@@ -193,7 +193,7 @@ def _in_data_units(b: Baseline, eq: Equilibrated) -> Baseline:
 
 def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Baseline:
     """Attach the simulated law of a new row's d2 where no exact law exists, and check the screen."""
-    from ..monitor.calibrated import ASYMPTOTIC_CELLS, correlation_lower, simulate_law, simulated_always
+    from ..monitor.calibrated import asymptotic_serves, correlation_lower, simulate_law
 
     prm = b.params
     settings: dict = {}
@@ -214,13 +214,22 @@ def _with_law(b: Baseline, clean: Cleaner, src: Source, seed: int | None) -> Bas
             settings["weights"] = w[w > 0]
             m = int(settings["weights"].size)
     law = None
-    if need and (m * b.dim <= ASYMPTOTIC_CELLS or simulated_always(b.estimator)):
+    if need and not asymptotic_serves(b.estimator, m, b.dim):
         law = simulate_law(b.estimator, correlation_lower(b.factor), m, settings=settings, seed=seed)
         if law.flagged_mean is not None:
             prm = dict(prm, flagged_expected_clean=law.flagged_mean, flagged_expected_se=law.flagged_se)
     out = Baseline(mean=b.mean, factor=b.factor, n=b.n, columns=b.columns, estimator=b.estimator, params=prm,
                    health=b.health, weight_sum=b.weight_sum, limit_law=law)
     _screen_warning(out)
+    if law is not None:
+        from .._warn import warn
+        from ..errors import LimitAccuracyWarning
+        from ..monitor.calibrated import ACCURATE_ROWS_PER_SENSOR, accuracy_note
+
+        note = accuracy_note(b.estimator, m, b.dim)
+        if note and m < ACCURATE_ROWS_PER_SENSOR * b.dim:
+            warn(LimitAccuracyWarning, f"the {b.estimator} baseline's simulated alarm limit is {note}; prefer "
+                 f"at least {ACCURATE_ROWS_PER_SENSOR * b.dim} reference rows, or the sample estimator (exact law)")
     return out
 
 

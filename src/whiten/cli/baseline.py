@@ -89,7 +89,7 @@ def health_lines(b) -> list[str]:
     out.append(f"condition (correlation scale): {cond_s}; about {h.digits_lost:.1f} digits lost, "
                f"~{h.digits_trusted:.0f} trusted")
     law = getattr(b, "limit_law", None)
-    from ..monitor.calibrated import ASYMPTOTIC_CELLS, simulated_always
+    from ..monitor.calibrated import ASYMPTOTIC_CELLS, asymptotic_serves
     from ..monitor.limits import screen_check, t2_limit
 
     if law is not None:
@@ -99,7 +99,7 @@ def health_lines(b) -> list[str]:
         out.append(f"limit of new rows (exact law): the F law of the sample estimator with m = {b.n} "
                    "(Tracy, Young & Mason 1992)")
         lim = float(t2_limit(0.001, b.dim, b.n, phase="new"))
-    elif int(prm.get("n_total", b.n)) * b.dim > ASYMPTOTIC_CELLS and not simulated_always(b.estimator):
+    elif asymptotic_serves(b.estimator, int(prm.get("n_total", b.n)), b.dim):
         out.append(f"limit of new rows (asymptotic law): the sample estimator's F law with m = {b.n} "
                    f"(m p = {int(prm.get('n_total', b.n)) * b.dim} > {ASYMPTOTIC_CELLS} reference cells)")
         lim = float(t2_limit(0.001, b.dim, b.n, phase="new"))

@@ -50,11 +50,17 @@ from .._numerics import column_norms
 from ..errors import InputError
 from ..linalg.factor import Factor
 
-__all__ = ["SimulatedLaw", "simulate_law", "TAILS", "ASYMPTOTIC_CELLS", "SIM_CELLS", "ROBUST_STARTS", "LIMIT_SEED",
-           "simulated_always"]
+__all__ = ["SimulatedLaw", "simulate_law", "TAILS", "ASYMPTOTIC_CELLS", "ASYMPTOTIC_ROBUST_RATIO", "SIM_CELLS",
+           "ROBUST_STARTS", "LIMIT_SEED", "simulated_always", "asymptotic_serves"]
 
 TAILS = tuple(float(t) for t in np.geomspace(0.5, 1e-4, 25))  #: tail probabilities of the table
 ASYMPTOTIC_CELLS = 200_000  #: above m * p reference cells the sample law with m rows serves
+#: shrinkage and robust baselines with fewer rows per sensor than this get a LimitAccuracyWarning
+ACCURATE_ROWS_PER_SENSOR = 10
+#: measured (actual / stated) false-alarm rate of simulated shrinkage limits: (m/p below, words, lo, hi)
+MEASURED_RATIO = ((10, "< 10 p", 0.25, 2.5), (21, "<= 20 p", 0.65, 1.1))
+#: robust baselines also need m >= this many rows per sensor before the sample law serves (see asymptotic_serves)
+ASYMPTOTIC_ROBUST_RATIO = 1000
 SIM_CELLS = 10_000_000  #: shrinkage above ASYMPTOTIC_CELLS: draws x m x p kept near this
 ROBUST_STARTS = 10  #: random starts of the simulated robust refits
 LIMIT_SEED = 20050419  #: default seed of the simulation (fixed: limits are reproducible)
@@ -130,7 +136,14 @@ class SimulatedLaw:
         extra = "; below 1e-4 extrapolated (power-law tail, cautious)" if alpha < self.tails[-1] else ""
         return (f"T² law simulated by parametric bootstrap of the whole fit ({self.procedure}, m={self.m}, "
                 f"p={self.p}; {self.draws} refits x {self.rows_per_draw} new rows, seed {self.seed}); "
-                f"Monte Carlo s.e. of alpha at this limit {self.se_at(alpha):.2g}{extra}")
+                f"Monte Carlo s.e. of alpha at this limit {self.se_at(alpha):.2g}{extra}{self.accuracy()}")
+
+    def accuracy(self) -> str:
+        """'' where the simulated law is the estimator's own (pivotal) law; else the measured accuracy."""
+        if self.procedure.startswith("weighted sample"):
+            return ""
+        text = accuracy_note(self.procedure.split(",")[0].split(" ")[0].lower(), self.m, self.p)
+        return f"; {text}" if text else ""
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -227,6 +240,51 @@ def simulate_law(estimator: str, corr_lower: np.ndarray, m: int, *, settings: di
     return SimulatedLaw(p=p, m=int(m), procedure=what, tails=tuple(float(t) for t in tails),
                         quantiles=tuple(float(v) for v in qs), mc_se=tuple(float(v) for v in se),
                         draws=draws, rows_per_draw=k, seed=seed, flagged_mean=fm, flagged_se=fse)
+
+
+def asymptotic_serves(estimator: str | None, m: int, p: int) -> bool:
+    """True when the sample estimator's F law with m rows serves as the (asymptotic) law of a new row.
+
+    Never for shrinkage (:func:`simulated_always`). Weighted sample baselines: above
+    :data:`ASYMPTOTIC_CELLS` reference cells. Robust baselines also need ``m >= ASYMPTOTIC_ROBUST_RATIO * p``:
+    the reweighted MCD is less efficient than the sample covariance, and its extra error is a multiple of p / m
+    that the cell count alone does not bound (at p = 50, m = 4001, above the cell threshold, the F law gave a
+    false-alarm rate of 1.07% for 1%; ``tests/monitor/test_asymptotic_switch.py`` measures the excess).
+
+    Examples
+    --------
+    >>> asymptotic_serves("robust", 4001, 50), asymptotic_serves("robust", 20001, 10)
+    (False, True)
+    """
+    if simulated_always(estimator) or m * p <= ASYMPTOTIC_CELLS:
+        return False
+    return estimator != "robust" or m >= ASYMPTOTIC_ROBUST_RATIO * p
+
+
+def accuracy_note(estimator: str | None, m: int, p: int) -> str:
+    """The measured accuracy of a simulated shrinkage or robust limit with m rows (empty when not known to be off).
+
+    The bootstrap draws from the fitted correlation, and the law of these estimators depends on the true
+    one, so the stated alpha is approximate. Measured (``tests/monitor/test_calibrated_limits.py``, control
+    variates of known mean): Ledoit-Wolf and OAS limits alarmed between :data:`MEASURED_RATIO` times alpha
+    (too often for moderately correlated sensors at m = 2p, too rarely for strongly correlated ones; below
+    m = 2p the rate could not be measured: it is carried by rare baselines and a typical one alarms far less);
+    robust limits at m <= 10 p between 0.5 and about 4 times alpha, with a wide spread from baseline to
+    baseline.
+    """
+    if estimator == "fastmcd":
+        estimator = "robust"
+    if estimator == "shrinkage":
+        for below, words, lo, hi in MEASURED_RATIO:
+            if m < below * p:
+                return (f"approximate at m = {m} {words}: actual false-alarm rates of {lo:g} to {hi:g} times "
+                        "alpha were measured for shrinkage limits of this size (deaf for strongly correlated "
+                        "sensors, too many alarms for moderate correlation at m near 2 p)")
+        return ""
+    if estimator == "robust" and m < ACCURATE_ROWS_PER_SENSOR * p:
+        return (f"approximate at m = {m} < {ACCURATE_ROWS_PER_SENSOR} p: actual false-alarm rates of about 0.5 to "
+                "4 times alpha were measured for robust limits of this size")
+    return ""
 
 
 def simulated_always(estimator: str | None) -> bool:

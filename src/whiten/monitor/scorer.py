@@ -22,7 +22,7 @@ from .._warn import warn
 from ..errors import ConditioningWarning, InputError, WeakScreenWarning
 from ..io.tables import select_columns
 from ..linalg.factor import Factor
-from .calibrated import ASYMPTOTIC_CELLS, SimulatedLaw, simulated_always
+from .calibrated import ASYMPTOTIC_CELLS, ASYMPTOTIC_ROBUST_RATIO, SimulatedLaw, asymptotic_serves
 from .contributions import chain_terms, score_terms_into, whitened_and_drop
 from .fdr import add_fdr
 from .limits import check_alpha, check_phase, screen_check, t2_law, t2_limit, t2_pvalue
@@ -153,13 +153,14 @@ class Scorer:
             self.law_kind = "known-parameter"
             return f"known-parameter: {law}"
         if self.phase == "new" and other and self.m is not None and \
-                (self._m_fit * self.p <= ASYMPTOTIC_CELLS or simulated_always(est)):
+                not asymptotic_serves(est, self._m_fit, self.p):
             self.law_kind = "approximate"
             return (f"approximate: {law}; this {est} baseline carries no simulated law (a model file "
                     "older than whiten.baseline/3?); refit it for a limit that holds")
         if self.phase == "new" and other:
             self.law_kind = "asymptotic"
-            return (f"asymptotic: {law}; with m p = {self._m_fit * self.p} > {ASYMPTOTIC_CELLS} reference cells "
+            return (f"asymptotic: {law}; with m p = {self._m_fit * self.p} > {ASYMPTOTIC_CELLS} reference cells"
+                    + (f" and m >= {ASYMPTOTIC_ROBUST_RATIO} p" if est == "robust" else "") + " "
                     f"the extra estimation error of this {'weighted ' if weighted else ''}{est} baseline is "
                     "O(p/m), so the sample estimator's exact law serves")
         if self.phase == "reference" and other:

@@ -313,9 +313,60 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
                                       "how much the squared distance falls when that sensor is left out, with "
                                       "its plain standardized deviation written beside the bar."),
                            caption="What drives the largest distances.", key="contributions")
+    _ewma_panel(rep, scores, dig, charts, time)
     rep.section("How to read this", key="reading").paragraph(
         "Each row's squared Mahalanobis distance d2 measures how far its sensor readings are from the "
         "baseline's mean, in units of the baseline's own spread and correlation. The p-value is the chance "
         "that a healthy row would be at least this far; a row alarms when its p-value is below alpha, so in "
         "a healthy batch about alpha times the rows alarm by chance alone.")
     return rep
+
+
+def _ewma_panel(rep: Report, scores: Any, dig: Any, charts: bool, time: Any) -> None:
+    """The drift panel: the multivariate EWMA statistic, its limit and alarms (scores made with ``ewma=``)."""
+    from ..monitor.ewma import EWMA_CAUTION
+
+    attrs = dict(dig.attrs)
+    frame = scores if hasattr(scores, "columns") and "ewma_t2" in scores.columns else None
+    counts = (dig.drift or {}).get("ewma")
+    if frame is None and counts is None and attrs.get("ewma_lambda") is None:
+        return
+    n_alarm: int | None = None
+    first: int | None = None
+    if frame is not None:
+        alarm = frame["ewma_alarm"].to_numpy(dtype=bool)
+        hits = np.flatnonzero(alarm)
+        n_alarm, first = int(alarm.sum()), (int(hits[0]) if hits.size else None)
+    elif counts is not None:
+        n_alarm = int(counts.get("n_alarm", 0))
+        first = counts.get("first_alarm_row")
+    lam = attrs.get("ewma_lambda")
+    info = attrs.get("ewma_limit") or {}
+    if n_alarm is not None:
+        rep.key_figure("EWMA alarms", n_alarm, key="ewma-alarms", tone="alert" if n_alarm else "good",
+                       note=(f"first at row {first}" if first is not None else "no drift alarm")
+                       + (f"; lambda {lam:g}" if lam is not None else ""))
+    caution = str(attrs.get("ewma_caution") or EWMA_CAUTION)
+    rep.health("Drift statistic", caution, "note")
+    sec = rep.section("Drift (multivariate EWMA)", key="ewma")
+    arl = info.get("arl")
+    sec.paragraph("The multivariate EWMA statistic (Lowry, Woodall, Champ & Rigdon 1992) smooths the rows with "
+                  f"weight {format_number(lam, 3) if lam is not None else 'lambda'} on the newest and measures the "
+                  "smoothed vector against its own exact covariance, so a slow drift that no single row shows "
+                  "builds up until it crosses the limit"
+                  + (f", set by simulation for an in-control average run length of {format_number(arl, 4)} rows"
+                     if arl is not None else "") + ". "
+                  + (f"{attrs['ewma_basis']}. " if attrs.get("ewma_basis") else "") + caution)
+    if frame is None:
+        sec.paragraph("This run was streamed: the counts above come from its digest; the EWMA chart needs the "
+                      "score table (whiten.monitor.score with ewma=).")
+        return
+    if charts and len(frame):
+        from ..monitor.charts import ewma_chart
+
+        above = f"{n_alarm} rows are above it, the first at row {first}" if n_alarm else "no row is above it"
+        with tempfile.TemporaryDirectory(prefix="whiten-report-") as tmp:
+            png = ewma_chart(frame, Path(tmp) / "ewma.png", time=time)
+            sec.figure(png, alt=(f"Chart of the multivariate EWMA statistic of {len(frame)} rows on a log scale "
+                                 f"with its limit as a line; {above}."),
+                       caption="Multivariate EWMA statistic per row and its limit. " + caution, key="ewma-chart")
