@@ -67,6 +67,18 @@ def add_reader_options(p) -> None:
                    help="decimal mark of the data file (default '.'); no thousands separator is ever read")
 
 
+def add_progress_options(p) -> None:
+    """``--quiet``: no progress on standard error (the summary on standard output stays)."""
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress on standard error (a bar on a terminal, else a line about every 10 s); "
+                        "e.g. --quiet in a cron job")
+
+
+def progress_of(args) -> bool | None:
+    """The ``progress=`` of a library call for a command: False with --quiet, else None (decide by stderr)."""
+    return False if getattr(args, "quiet", False) else None
+
+
 def open_data(args, path=None):
     """The data file of a command opened by the one reader, with its --sep/--decimal."""
     from ..io.tables import open_table

@@ -6,7 +6,7 @@ import argparse
 import math
 
 from ..errors import InputError
-from . import add_reader_options, open_data
+from . import add_progress_options, add_reader_options, open_data, progress_of
 
 EPILOG = """\
 examples:
@@ -47,6 +47,7 @@ def add_parser(sub) -> None:
                    help="incomplete rows: drop and count them (default) or stop at the first")
     p.add_argument("--force", action="store_true", help="replace the model file if it exists")
     add_reader_options(p)
+    add_progress_options(p)
     p.set_defaults(func=run)
 
 
@@ -126,7 +127,7 @@ def run(args) -> int:
     refuse_inputs({"-o": args.output}, {"data": args.data})
     b = fit_baseline(open_data(args), estimator=args.estimator, columns=_columns(args.columns),
                      chunksize=args.chunksize, index_column=args.index_column, missing=args.missing,
-                     shrinkage=args.shrinkage, weights=args.weight_column)
+                     shrinkage=args.shrinkage, weights=args.weight_column, progress=progress_of(args))
     path = b.save(args.output, force=args.force)
     print(f"baseline from {args.data}")
     for line in health_lines(b):

@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
-from . import add_reader_options, open_data
+from . import add_progress_options, add_reader_options, open_data, progress_of
 
 EPILOG = """\
 examples:
@@ -58,7 +58,9 @@ def add_parser(sub) -> None:
         epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("data", metavar="DATA", help="table of sensor rows (.csv, .tsv, .parquet)")
     p.add_argument("--baseline", required=True, metavar="MODEL.json", help="model file from `whiten baseline`")
-    p.add_argument("-o", "--output", required=True, metavar="SCORES.csv", help="where to write the scores")
+    p.add_argument("-o", "--output", required=True, metavar="SCORES.csv",
+                   help="where to write the scores; the name chooses the format: .csv, .tsv, .csv.gz, .tsv.gz or "
+                        ".parquet (Parquet needs pyarrow), e.g. -o week32_scores.parquet")
     p.add_argument("--alpha", type=float, default=0.001, help="false-alarm probability per row (default 0.001)")
     p.add_argument("--phase", choices=["new", "reference", "known"], default="new",
                    help="law of the distance: new rows (default), the reference rows themselves, "
@@ -90,6 +92,7 @@ def add_parser(sub) -> None:
                    help="also alarm when K of the last M rows exceed a per-row level chosen so that this rule's "
                         "false-alarm rate per healthy row is alpha (e.g. 3/5)")
     add_reader_options(p)
+    add_progress_options(p)
     p.set_defaults(func=run)
 
 
@@ -135,12 +138,15 @@ def run(args) -> int:
         check_writable(args.report, force=args.force, what="report")
     refuse_inputs({"-o": out, "--chart": args.chart, "--contributions": args.contributions,
                    "--report": getattr(args, "report", None)}, {"data": args.data, "--baseline": model_path})
+    from ..io.writers import output_format
+
+    output_format(args.output, option="-o")  # the name chooses the format; refused before any work
     baseline = load_baseline(model_path)
     # the summary, the charts and the report come from the digest (whiten.monitor.ScoreDigest):
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
     digest = score_file(baseline, open_data(args), out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
                         index_column=args.index_column, chunksize=args.chunksize, force=args.force,
-                        chart_points=args.chart_points, worst=_WORST, progress=None,
+                        chart_points=args.chart_points, worst=_WORST, progress=progress_of(args),
                         ewma=args.ewma, ewma_arl=args.ewma_arl, persist=args.persist)
     at = digest.attrs
     sensors = list(at["sensors"])

@@ -27,14 +27,18 @@ _TEXT_OPENERS: dict[str, Callable[..., IO[str]]] = {".gz": gzip.open, ".bz2": bz
 
 
 def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, where: str,
-                path: Path, fmt: str, *, sep: str = ",", decimal: str = "."):
+                path: Path, fmt: str, *, sep: str = ",", decimal: str = ".", na_values: Sequence[str] = ()):
     """``df[columns]`` as one float64 DataFrame on ``index``; a cell that is not a number is an InputError.
 
     The values go straight into one column-major (rows x columns) array, so
     the frame's ``to_numpy()`` is a view of it and callers convert nothing
-    again. Missing cells stay NaN.
+    again. Missing cells stay NaN, and so does a cell holding one of ``na_values``
+    (its text, or for a numeric code its number).
     """
     import pandas as pd
+
+    codes = set(na_values)
+    numbers = np.array([v for v in (_as_number(c) for c in codes) if v is not None], dtype=np.float64)
 
     n = len(df)
     out = np.empty((n, len(columns)), dtype=np.float64, order="F")
@@ -42,8 +46,15 @@ def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, whe
         s = df[c]
         if s.dtype.kind in "iufb":
             out[:, j] = s.to_numpy(dtype=np.float64, na_value=np.nan)
+            if numbers.size:
+                out[np.isin(out[:, j], numbers), j] = np.nan
             continue
         text = s.astype("string").str.strip()
+        if codes:
+            coded = text.isin(codes).to_numpy(dtype=bool, na_value=False)
+            if coded.any():
+                s = s.where(~coded, None)
+                text = text.where(~coded, pd.NA)
         grouped = text.str.contains(_GROUPED[decimal], regex=True, na=False).to_numpy(dtype=bool)
         if decimal != ".":
             text = text.str.replace(decimal, ".", regex=False)
@@ -53,6 +64,8 @@ def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, whe
             k = int(np.flatnonzero(bad)[0])
             raise _not_numeric(where, path, fmt, c, first_row + k, s.iloc[k], sep, decimal)
         out[:, j] = coerced.to_numpy(dtype=np.float64, na_value=np.nan)
+        if numbers.size:
+            out[np.isin(out[:, j], numbers), j] = np.nan
     _refuse_infinite(out, columns, first_row, index, where, path, fmt, sep)
     return pd.DataFrame(out, index=index, columns=list(columns), copy=False)
 
@@ -98,6 +111,14 @@ def _not_numeric(where: str, path: Path, fmt: str, column: str, row: int, value:
     else:
         why = "Fix the cell, or leave the column out with --columns / columns=[...]"
     return InputError(f"{where}: column {column!r} is not numeric: {at} holds {value!r}. {why}")
+
+
+def _as_number(code: str) -> float | None:
+    try:
+        v = float(code)
+    except ValueError:
+        return None
+    return v if np.isfinite(v) else None
 
 
 def header_fields(path: Path, sep: str) -> list[str] | None:

@@ -15,9 +15,10 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from ..io.atomic import atomic_open, check_writable, same_file
-from ..io.tables import Table, open_table, write_csv_chunk
+from ..io.atomic import check_writable, same_file
+from ..io.tables import Table, open_table
 from ..io.tables import progress as _progress
+from ..io.writers import open_output, output_format
 from .digest import ScoreDigest
 from .drift import DriftRules
 from .fdr import add_fdr, bh_adjust
@@ -34,7 +35,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
                chart_points: int = 20_000, worst: int = 5, progress: bool | None = False,
                ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None,
                sep: str | None = None, decimal: str | None = None) -> ScoreDigest:
-    """Score every row of a table file against a baseline and write the score table as CSV.
+    """Score every row of a table file against a baseline and write the score table in the format of its name.
 
     Parameters
     ----------
@@ -44,8 +45,10 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         CSV/TSV (maybe compressed) or Parquet file of sensor rows; columns are
         matched to the baseline's sensors by name, other columns are ignored.
     output_path : str or PathLike
-        Where the score table goes (CSV). Written to a temporary sibling and
-        renamed into place when complete; never the input file.
+        Where the score table goes; its name chooses the format (``.csv``,
+        ``.tsv``, ``.csv.gz``, ``.tsv.gz``, ``.parquet``; see
+        :func:`whiten.io.writers.output_format`). Written to a temporary
+        sibling and renamed into place when complete; never the input file.
     alpha, missing, phase, fdr, order
         As for :func:`whiten.monitor.score`. With ``fdr`` the file is read
         twice: the first pass collects every p-value, so the Benjamini-Hochberg
@@ -83,7 +86,9 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     ------
     InputError
         As :func:`whiten.monitor.score` and :func:`whiten.io.tables.open_table`;
-        an existing output without ``force``; an output naming the input; a
+        an existing output without ``force``; an output naming the input; an
+        output name whose format whiten does not write (or ``.parquet``
+        without pyarrow); a
         non-finite value (or NaN with ``missing="error"``) with its row and column.
 
     Notes
@@ -108,6 +113,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     drift = DriftRules(scorer, ewma=ewma, ewma_arl=ewma_arl, persist=persist)
     if fdr is not None:
         fdr = check_alpha(fdr, "fdr")
+    output_format(output_path)  # an ending whiten cannot write is refused before any work
     table = data_path if isinstance(data_path, Table) else open_table(data_path, sep=sep, decimal=decimal)
     out = check_writable(output_path, force=force, what="output")
     if same_file(out, table.path):
@@ -128,7 +134,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         ps = [scorer.score_array(_values(ch, scorer, table, k))["p_value"] for k, ch in _numbered(passes("pass 1/2"))]
         adjusted = bh_adjust(np.concatenate(ps)) if ps else np.empty(0)
     n_rows = 0
-    with atomic_open(out, "w", force=force, what="output") as fh:
+    with open_output(out, force=force, what="output") as writer:
         for k, chunk in _numbered(passes("scoring" if adjusted is None else "pass 2/2")):
             x = _values(chunk, scorer, table, k)
             scores = scorer.score_array(x)
@@ -141,7 +147,7 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
             frame = pd.DataFrame(scores, index=chunk.index)
             if index_column is None:
                 frame.index.name = "row"
-            write_csv_chunk(frame, fh, header=n_rows == 0)
+            writer.write(frame)
             digest.add(scores, index=frame.index)
             n_rows += m
         if adjusted is not None and n_rows != adjusted.shape[0]:
