@@ -34,7 +34,8 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
                index_column: str | None = None, chunksize: int | None = None, force: bool = False,
                chart_points: int = 20_000, worst: int = 5, progress: bool | None = False,
                ewma: float | None = None, ewma_arl: float | None = None, persist: Any = None,
-               sep: str | None = None, decimal: str | None = None) -> ScoreDigest:
+               sep: str | None = None, decimal: str | None = None, gap: int = 2,
+               episodes_path: str | os.PathLike | None = None) -> ScoreDigest:
     """Score every row of a table file against a baseline and write the score table in the format of its name.
 
     Parameters
@@ -71,11 +72,17 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     sep, decimal : str, optional
         How the file separates fields and writes decimals (see
         :func:`whiten.io.tables.open_table`).
+    gap : int
+        The episode rule (:mod:`whiten.monitor.episodes`): quiet rows that may
+        separate two runs of alarms in one episode (default 2).
+    episodes_path : str or PathLike, optional
+        Also write the episode table there (format by its name, atomically).
 
     Returns
     -------
     ScoreDigest
-        Counts, the worst rows whole and the control-chart trace; also
+        Counts, the worst rows whole, the control-chart trace and the alarm
+        episodes (:meth:`ScoreDigest.episodes`); also
         ``source`` (the file read) and ``ignored_columns`` (its columns not in
         the model, the index column aside); with ``ewma``/``persist``,
         ``drift`` holds per rule the alarms, the 0-based data row of the
@@ -114,13 +121,16 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
     if fdr is not None:
         fdr = check_alpha(fdr, "fdr")
     output_format(output_path)  # an ending whiten cannot write is refused before any work
+    if episodes_path is not None:
+        output_format(episodes_path, option="--episodes")
+        check_writable(episodes_path, force=force, what="episodes")
     table = data_path if isinstance(data_path, Table) else open_table(data_path, sep=sep, decimal=decimal)
     out = check_writable(output_path, force=force, what="output")
     if same_file(out, table.path):
         raise InputError(f"output: {str(out)!r} names the data file being read; write the scores elsewhere")
     cols = table.select(scorer.columns, index_column=index_column, what="the model")
     digest = ScoreDigest(scorer.columns, attrs={**scorer.attrs(fdr), **drift.attrs()}, worst=worst,
-                         chart_points=chart_points)
+                         chart_points=chart_points, gap=gap)
     digest.source = str(table.path)
     digest.ignored_columns = [c for c in table.columns if c not in scorer.columns and c != index_column]
 
@@ -153,6 +163,9 @@ def score_file(baseline: Any, data_path: str | os.PathLike | Table, output_path:
         if adjusted is not None and n_rows != adjusted.shape[0]:
             raise InputError(f"{table.where} changed while it was read twice for fdr; score it again")
     digest.drift = drift.summary()
+    if episodes_path is not None:
+        with open_output(episodes_path, force=force, what="episodes", option="--episodes") as writer:
+            writer.write(digest.episodes())
     return digest
 
 
