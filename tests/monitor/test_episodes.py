@@ -170,3 +170,16 @@ def test_contributions_cap_is_said(station, capsys, monkeypatch):
                  "--index-column", "stamp", "--contributions", str(d / "why2.png"), "--force", "--quiet"]) == 0
     out = capsys.readouterr().out
     assert "the peak rows of the first 2 of" in out and "(at most 2)" in out
+
+
+def test_report_lists_the_episodes(station):
+    from whiten.report import monitoring_report
+
+    d, _ = station
+    b = whiten.load_baseline(d / "m.json")
+    scores = whiten.monitor.score(b, pd.read_csv(d / "test.csv").set_index("stamp"))
+    rep = monitoring_report(scores, b, charts=True)
+    n = len(episodes(scores))
+    assert [f.value for f in rep.figures if f.key == "episodes"] == [n]
+    html = rep.to_html()
+    assert "Alarm episodes" in html and "bearing_mm_s" in html

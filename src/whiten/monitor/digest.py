@@ -254,6 +254,11 @@ class ScoreDigest:
         return out
 
     @property
+    def gap(self) -> int:
+        """The episode gap rule: quiet rows that may separate two runs of alarms in one episode."""
+        return self._episodes.gap
+
+    @property
     def n_episodes(self) -> int:
         return len(self._episodes)
 
