@@ -6,7 +6,7 @@ import argparse
 import math
 
 from ..errors import InputError
-from . import add_progress_options, add_reader_options, open_data, progress_of
+from . import add_progress_options, add_reader_options, command_words, open_data, progress_of
 
 EPILOG = """\
 examples:
@@ -16,7 +16,7 @@ examples:
   whiten baseline few_rows.csv -o loop.json --estimator shrinkage --force
   whiten baseline counts.csv -o loop.json --weight-column n_seen
 
-The model file is JSON (format whiten.baseline/3) with a SHA-256 checksum;
+The model file is JSON (format whiten.baseline/4) with a SHA-256 checksum;
 `whiten inspect MODEL.json` describes it and `whiten score` uses it. Large
 files are read in chunks with bounded memory. Rows with a missing reading are
 left out and counted (--missing error stops at the first instead).
@@ -127,7 +127,8 @@ def run(args) -> int:
     refuse_inputs({"-o": args.output}, {"data": args.data})
     b = fit_baseline(open_data(args), estimator=args.estimator, columns=_columns(args.columns),
                      chunksize=args.chunksize, index_column=args.index_column, missing=args.missing,
-                     shrinkage=args.shrinkage, weights=args.weight_column, progress=progress_of(args))
+                     shrinkage=args.shrinkage, weights=args.weight_column, progress=progress_of(args),
+                     call=command_words(args))
     path = b.save(args.output, force=args.force)
     print(f"baseline from {args.data}")
     for line in health_lines(b):

@@ -84,7 +84,11 @@ def add_parser(sub) -> None:
                    help="quiet rows that may separate two runs of alarms in one episode (default 2; 0: only "
                         "unbroken runs), e.g. --episode-gap 10")
     p.add_argument("--index-column", metavar="COL",
-                   help="column that labels rows (e.g. a timestamp); kept in the output")
+                   help="column that labels rows (e.g. a timestamp); kept in the output (default: the model's "
+                        "own index column, when the file has it)")
+    p.add_argument("--rename", metavar="OLD=NEW,...",
+                   help="rename file columns onto the model's sensor names, e.g. --rename P1=suction_bar,"
+                        "P2=discharge_bar; unmatched names are listed as missing and extra columns")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
     p.add_argument("--report", metavar="FILE.html",
@@ -163,17 +167,22 @@ def run(args) -> int:
     baseline = load_baseline(model_path)
     # the summary, the charts and the report come from the digest (whiten.monitor.ScoreDigest):
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
-    digest = score_file(baseline, open_data(args), out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
+    digest = score_file(baseline, open_data(args, na_values=False), out, alpha=args.alpha, phase=args.phase,
+                        fdr=args.fdr,
                         index_column=args.index_column, chunksize=args.chunksize, force=args.force,
                         chart_points=args.chart_points, worst=_WORST, progress=progress_of(args),
                         ewma=args.ewma, ewma_arl=args.ewma_arl, persist=args.persist,
-                        gap=args.episode_gap, episodes_path=args.episodes)
+                        gap=args.episode_gap, episodes_path=args.episodes, na_values=args.na_values,
+                        rename=args.rename)
     at = digest.attrs
     sensors = list(at["sensors"])
     n_rows = digest.n_rows
+    tag = baseline.tag()
     lines = [
         f"scored {n_rows} rows of {args.data} against {args.baseline} "
         f"({len(sensors)} sensors, {at['reference_rows']} reference rows, phase {at['phase']!r})",
+        f"model: {tag}" if tag else f"model: {args.baseline} (format {baseline.model_format}: no provenance; "
+                                    "refit it to have one)",
         f"limit ({at.get('limit_law', 'law')} law): {at['limit_basis']}",
         f"model accuracy: distances trusted to about {at['digits_trusted']:.0f} significant "
         f"digits (jitter {at['jitter']:g})",
@@ -195,16 +204,19 @@ def run(args) -> int:
     lines.append(f"scores written to {out}")
     if args.episodes:
         lines.append(f"episodes written to {args.episodes} ({digest.n_episodes})")
+    for note in digest.notes:
+        lines.append(f"note: {note}")
     trace = digest.trace() if (args.chart or getattr(args, "report", None)) else None
     time_axis = None
-    if trace is not None and args.index_column is not None:
+    if trace is not None and digest.index_column is not None:
         # each chart point's label (a pooled point: its first row's), as times or numbers when they are
         time_axis = _time_axis([trace.index.to_numpy()])
     if args.chart:
         from ..monitor.charts import distance_chart
 
         distance_chart(trace, args.chart, force=args.force, time=time_axis, spans=episode_spans(digest, time_axis),
-                       title=f"Squared Mahalanobis distance per row: {os.path.basename(str(args.data))}")
+                       title=f"Squared Mahalanobis distance per row: {os.path.basename(str(args.data))}",
+                       subtitle=tag or None)
         lines.append(f"chart written to {args.chart}"
                      + (f" (each point: the largest d2 of {digest.rows_per_point} consecutive rows)"
                         if digest.rows_per_point > 1 else ""))
@@ -229,7 +241,8 @@ def run(args) -> int:
     if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report), from the digest
         from ..report import cli_provenance, monitoring_report
 
-        monitoring_report(digest, baseline, title=f"Scores of {os.path.basename(str(args.data))}",
+        monitoring_report(digest, baseline, title=f"Scores of {os.path.basename(str(args.data))}"
+                          + (f" ({tag})" if tag else ""),
                           time=time_axis,
                           provenance=cli_provenance(args, inputs=[args.data], model=args.baseline)
                           ).write(args.report, force=args.force)

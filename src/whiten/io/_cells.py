@@ -13,6 +13,7 @@ import gzip
 import io
 import lzma
 import os
+import re
 import zipfile
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -97,6 +98,10 @@ def _refuse_infinite(out: np.ndarray, columns: Sequence[str], first_row: int, in
 _GROUPED = {".": r"^[+-]?\d{1,3}(?:[,' ]\d{3})+(?:\.\d*)?$", ",": r"\."}
 
 
+# a date or time stamp: 2026-05-04, 04/05/2026, 2026-05-04T06:15, 06:15:00 ...
+_DATE_LIKE = re.compile(r"^(\d{4}[-/.]\d{1,2}[-/.]\d{1,2}|\d{1,2}[-/.]\d{1,2}[-/.]\d{2,4}|\d{1,2}:\d{2})")
+
+
 def _not_numeric(where: str, path: Path, fmt: str, column: str, row: int, value: Any,
                  sep: str = ",", decimal: str = ".") -> InputError:
     line = data_line(path, fmt, row, sep) if fmt != "parquet" else None
@@ -108,6 +113,9 @@ def _not_numeric(where: str, path: Path, fmt: str, column: str, row: int, value:
     elif decimal == "." and "," in text and text.replace(",", "").replace(".", "").lstrip("+-").isdigit():
         why = ("',' is a thousands separator or a decimal comma, which whiten never guesses; remove the "
                "thousands separators, or for a decimal comma pass --sep ';' --decimal ','")
+    elif _DATE_LIKE.match(text):
+        why = (f"It looks like a date or time: if the column labels the rows, name it with --index-column "
+               f"{column} (index_column={column!r} in Python)")
     else:
         why = "Fix the cell, or leave the column out with --columns / columns=[...]"
     return InputError(f"{where}: column {column!r} is not numeric: {at} holds {value!r}. {why}")

@@ -93,10 +93,12 @@ def write_model(path: str | os.PathLike, fmt: str, payload: dict, *, force: bool
     return write_text(path, text, force=force, what="model")
 
 
-def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()) -> tuple[dict, str]:
+def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = (),
+               digest_to: dict | None = None) -> tuple[dict, str]:
     """Read and verify a model file written by :func:`write_model`; returns ``(payload, format)``.
 
-    ``older`` lists earlier versions of ``fmt`` the caller can still read.
+    ``older`` lists earlier versions of ``fmt`` the caller can still read;
+    ``digest_to``, a dict, receives the verified checksum under ``"sha256"``.
 
     Raises
     ------
@@ -155,4 +157,6 @@ def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()
         raise ModelFileError(
             f"model file {str(p)!r} failed its SHA-256 check (stored {digest[:12]}..., computed "
             f"{actual[:12]}...): it was edited or damaged after writing; refit or restore it")
+    if digest_to is not None:
+        digest_to["sha256"] = actual
     return payload, got

@@ -23,10 +23,11 @@ import numpy as np
 from .._validate import select_columns
 from ..errors import InputError
 from ._cells import check_field_counts, float_block, header_fields
+from .options import na_list, rename_map
 
 __all__ = ["open_table", "Table", "select_columns", "read_table_chunks", "table_columns", "table_format",
            "existing_file", "progress", "write_csv_chunk", "DEFAULT_CHUNKSIZE", "reader_options", "table_progress",
-           "na_list"]
+           "na_list", "rename_map"]
 
 DEFAULT_CHUNKSIZE = 100_000
 _COMPRESSED = (".gz", ".bz2", ".xz", ".zip", ".zst")
@@ -139,20 +140,6 @@ def open_table(path: str | os.PathLike, *, sep: str | None = None, decimal: str 
     return Table(p, fmt, names, sep=use, decimal=dec, na_values=na_list(na_values))
 
 
-def na_list(na_values: Sequence[str] | str | None) -> tuple[str, ...]:
-    """The missing-value codes, checked: a comma-separated string or a sequence of non-empty strings."""
-    if na_values is None:
-        return ()
-    items = na_values.split(",") if isinstance(na_values, str) else list(na_values)
-    out = []
-    for v in items:
-        if not isinstance(v, str) or not v.strip():
-            raise InputError(f"--na-values / na_values: expected codes such as -9999,ERR,n/a (comma-separated), "
-                             f"got {na_values!r}")
-        out.append(v.strip())
-    return tuple(dict.fromkeys(out))
-
-
 def reader_options(sep: str | None, decimal: str | None) -> tuple[str | None, str]:
     """``(sep, decimal)`` checked: one character each (``"tab"``/``"\\t"`` is a tab), decimal ``.`` or ``,``."""
     if sep is not None:
@@ -208,6 +195,7 @@ class Table:
         self.decimal = decimal
         self.na_values = tuple(na_values)
         self._shape_checked = fmt == "parquet"
+        self._file_names: dict[str, str] = {}  # renamed column -> its name in the file (see rename)
         #: bytes of the file read so far by the running :meth:`chunks` (for progress), and the file's size
         self.bytes_read = 0
         self.size = path.stat().st_size if path.exists() else 0
@@ -233,6 +221,30 @@ class Table:
 
     def __repr__(self) -> str:
         return f"Table({str(self.path)!r}, format={self.format!r}, columns={self.columns})"
+
+    def rename(self, mapping: dict[str, str] | None) -> Table:
+        """The same file with columns renamed (``{"name in the file": "name wanted"}``); see :func:`rename_map`.
+
+        Raises
+        ------
+        InputError
+            A name to rename that is not in the header (the header is listed), or
+            a new name that another column already has.
+        """
+        if not mapping:
+            return self
+        gone = [old for old in mapping if old not in self.columns]
+        if gone:
+            raise InputError(f"--rename / rename: {self.where} has no column {', '.join(map(repr, gone))}; its "
+                             f"columns are {self.columns}")
+        new = [mapping.get(c, c) for c in self.columns]
+        dup = sorted({c for c in new if new.count(c) > 1})
+        if dup:
+            raise InputError(f"--rename / rename: after renaming, {self.where} would have two columns named "
+                             f"{', '.join(map(repr, dup))}")
+        out = Table(self.path, self.format, new, sep=self.sep, decimal=self.decimal, na_values=self.na_values)
+        out._file_names = {n: o for n, o in zip(new, self.columns) if n != o}
+        return out
 
     def select(self, columns: Sequence[str] | None = None, *, index_column: str | None = None,
                what: str = "the columns asked for", also: Sequence[str] = ()) -> list[str]:
@@ -281,7 +293,8 @@ class Table:
         if fmt == "parquet":
             pq = _pyarrow_parquet()
             try:
-                batches = pq.ParquetFile(str(p)).iter_batches(batch_size=chunksize, columns=read)
+                batches = pq.ParquetFile(str(p)).iter_batches(
+                    batch_size=chunksize, columns=[self._file_names.get(c, c) for c in read])
             except Exception as exc:
                 raise InputError(f"{self.where} is not a readable Parquet file ({exc})") from None
             frames: Iterable = (b.to_pandas() for b in batches)
@@ -303,7 +316,8 @@ class Table:
             for df in frames:
                 if len(df) == 0:
                     continue
-                df.columns = [str(c) for c in df.columns]
+                back = {o: n for n, o in self._file_names.items()}
+                df.columns = [back.get(str(c), str(c)) if fmt == "parquet" else str(c) for c in df.columns]
                 if index_column is not None:
                     idx = pd.Index(df[index_column].to_numpy(), name=index_column)
                 else:

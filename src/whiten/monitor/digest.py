@@ -93,6 +93,8 @@ class ScoreDigest:
         # what whiten.monitor.score_file read: the file, and its columns not in the model
         self.source: str | None = None
         self.ignored_columns: list[str] = []
+        self.notes: list[str] = []  # plain-words remarks of the run (e.g. no index column)
+        self.index_column: str | None = None  # the column that labelled the rows, if any
         self._episodes = EpisodeTracker(self.sensors, gap=gap)
         self.drift: dict = {}  # per drift rule (ewma=, persist=): alarms and first alarm row, set by score_file
 

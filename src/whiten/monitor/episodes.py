@@ -187,9 +187,10 @@ def episodes(scores: Any, *, gap: int = DEFAULT_GAP):
     >>> ep[["first_row", "last_row", "alarm_rows", "lead_1"]].values.tolist()
     [[3, 6, 3, 'a']]
     """
-    from .digest import need_score_columns
-
-    need_score_columns(scores, ["d2", "p_value", "alarm"])
+    have = set(getattr(scores, "columns", []))
+    gone = [c for c in ("d2", "p_value", "alarm") if c not in have]
+    if gone or not hasattr(scores, "attrs"):
+        raise InputError(f"scores: expected the DataFrame returned by whiten.monitor.score; missing columns {gone}")
     sensors = [str(c)[5:] for c in scores.columns if str(c).startswith("drop:")]
     t = EpisodeTracker(sensors, gap=gap)
     t.add({str(c): scores[c].to_numpy() for c in scores.columns}, index=scores.index)
