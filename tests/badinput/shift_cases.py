@@ -24,4 +24,13 @@ CLI = [
      1, ["--na-values", "comma-separated"], []),
     ("baseline-date-column", {"r.csv": "t,a\n2026-01-01 00:00,1\n2026-01-01 01:00,2\n"},
      "baseline r.csv -o m2.json", 1, ["column 't'", "line 2", "--index-column t"], []),
+    ("inspect-a-csv-table", {"t.csv": "stamp,a,b\nt0,1,2\nt1,3,4\n"}, "inspect t.csv",
+     1, ["'t.csv'", "looks like a CSV table of 3 columns", "header: stamp, a, b", "2 data line(s)",
+         "whiten baseline t.csv"], []),
+    ("inspect-a-tsv-table", {"t.tsv": "a\tb\n1\t2\n"}, "inspect t.tsv", 1, ["tab-separated table"], []),
+    ("inspect-empty-file", {"e.json": ""}, "inspect e.json", 1, ["is empty (0 bytes)", "whiten baseline"], []),
+    ("inspect-blank-file", {"e.json": "\n\n"}, "inspect e.json", 1, ["is empty (2 bytes, only blank space)"], []),
+    ("inspect-json-list", {"l.json": "[1, 2]"}, "inspect l.json", 1, ["a JSON list", "not a whiten model"], []),
+    ("score-baseline-is-csv", {"d.csv": GOOD}, "score d.csv --baseline d.csv -o s.csv",
+     1, ["looks like a CSV table"], []),
 ]

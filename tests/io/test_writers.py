@@ -136,3 +136,13 @@ def test_writer_in_python():
     w.close()
     assert buf.getvalue().decode() == 'row,v,flag,t\n0,1.0,true,"a,b"\n1,,false,"q"""\n'
     assert open_output  # the context manager is the public entry point
+
+
+@pytest.mark.parametrize("head, word", [(b"\x89PNG\r\n\x1a\n\x00\x00", "a PNG image"), (b"PAR1\x00\xff", "a Parquet table"),
+                                        (b"\x1f\x8b\x08\x00\xff", "gzip-compressed data")])
+def test_inspect_names_binary_files(tmp_path, capsys, head, word):
+    """A binary file handed to inspect is named by its leading bytes (the formats' published signatures)."""
+    (tmp_path / "x.bin").write_bytes(head + b"\xff" * 20)
+    assert main(["inspect", str(tmp_path / "x.bin")]) == 1
+    err = capsys.readouterr().err
+    assert f"it looks like {word}" in err and len(err.strip().splitlines()) == 1
