@@ -78,7 +78,7 @@ class Progress:
     >>> p.update(400, rows=40)
     >>> p.close()
     >>> out.getvalue()
-    'whiten: scoring: 400 B of 1000 B read (40%), 40 rows, about 0:18 left\\n'
+    'whiten: scoring: 400 B of 1.0 kB read (40%), 40 rows, about 0:18 left\\n'
     """
 
     def __init__(self, desc: str, total: int | None, *, mode: str = "lines", stream: Any = None,
