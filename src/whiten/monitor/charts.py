@@ -32,7 +32,7 @@ from ..errors import InputError
 from ..io.atomic import check_writable, write_bytes
 from .digest import need_score_columns as _need
 
-__all__ = ["distance_chart", "ewma_chart", "qq_chart", "contribution_chart"]
+__all__ = ["distance_chart", "distance_figure", "ewma_chart", "qq_chart", "contribution_chart"]
 
 # a palette of our own: slate for ordinary rows, amber for the limit, crimson for alarms
 _INK = "#2f3e4e"
@@ -116,8 +116,15 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     >>> png.read_bytes()[:4] == b"\\x89PNG"
     True
     """
-    _need(scores, ["d2", "limit", "alarm"])
     check_writable(path, force=force, what="chart")
+    fig = distance_figure(scores, time=time, title=title, spans=spans, subtitle=subtitle)
+    return _save(fig, path, force)
+
+
+def distance_figure(scores: Any, *, time: Any = None, title: str | None = None, spans: Any = None,
+                    subtitle: str | None = None):
+    """The figure :func:`distance_chart` writes (a matplotlib Figure on an Agg canvas), for tests and reuse."""
+    _need(scores, ["d2", "limit", "alarm"])
     n = len(scores)
     pooled = int(scores.attrs.get("rows_per_point", 1) or 1)  # a ScoreDigest trace of a long run
     if time is None and pooled > 1 and "first_row" in scores.columns:
@@ -164,7 +171,7 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     ax.set_xlabel("row" if time is None else "time", fontsize=9, color=_INK)
     ax.set_ylabel("d2 (log scale)", fontsize=9, color=_INK)
     _heading(fig, ax, title or "Squared Mahalanobis distance per row", sub)
-    return _save(fig, path, force)
+    return fig
 
 
 def _limit_label(ax, lim: np.ndarray) -> None:
