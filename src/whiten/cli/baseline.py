@@ -15,8 +15,11 @@ examples:
       --index-column timestamp --chunksize 50000
   whiten baseline few_rows.csv -o loop.json --estimator shrinkage --force
   whiten baseline counts.csv -o loop.json --weight-column n_seen
+  whiten baseline station_week.csv -o station.json --index-column timestamp --na-values=-9999,ERR
 
-The model file is JSON (format whiten.baseline/4) with a SHA-256 checksum;
+The model file is JSON (format whiten.baseline/4) with a SHA-256 checksum; it
+records the settings (index column, sensors, codes, estimator) and where it
+came from (source file and its SHA-256, rows, training period, this command);
 `whiten inspect MODEL.json` describes it and `whiten score` uses it. Large
 files are read in chunks with bounded memory. Rows with a missing reading are
 left out and counted (--missing error stops at the first instead).

@@ -18,6 +18,14 @@ examples:
   whiten score week32.csv --baseline pump_baseline.json -o scores.csv \\
       --index-column timestamp --alpha 0.0001 --fdr 0.05 --chart week32.png \\
       --contributions week32_why.png
+  whiten score station_test.csv --baseline station.json -o scores.parquet \
+      --episodes episodes.csv --episode-gap 5 --rename P1=suction_bar,P2=discharge_bar \
+      --na-values=-9999,ERR
+
+The model's index column and missing-value codes are used unless given;
+the summary names the model by its checksum and training period and lists
+the alarm episodes (runs of alarms joined across gaps of up to
+--episode-gap quiet rows) with their peak and leading sensors.
 
 The output has one line per input row, in input order: d2 (squared
 Mahalanobis distance), p_value, limit, alarm, n_observed, top_contributor,
