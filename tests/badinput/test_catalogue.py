@@ -22,6 +22,7 @@ from whiten.cli import main
 from whiten.errors import InputError, JitterWarning, ModelFileError
 
 from .conftest import snapshot
+from .shift_cases import CLI as SHIFT_CLI
 
 
 def _rows(fmt: str) -> str:
@@ -229,6 +230,9 @@ def _run_cli(argv: list[str]) -> int:
         return main(argv)
     except SystemExit as exc:  # argparse usage errors
         return int(exc.code or 0)
+
+
+CLI += SHIFT_CLI  # issue 20's cases (tests/badinput/shift_cases.py)
 
 
 @pytest.mark.parametrize("case", CLI, ids=[c[0] for c in CLI])

@@ -30,7 +30,7 @@ def test_round_trip_scores_identically(tmp_path, fitted):
     assert back.columns == b.columns and back.n == b.n and back.estimator == "sample"
     assert back.health == b.health
     doc = json.loads(f.read_text())
-    assert doc["format"] == "whiten.baseline/3"
+    assert doc["format"] == "whiten.baseline/4"
     # the checksum is SHA-256 (hashlib) of the canonical payload
     assert doc["sha256"] == hashlib.sha256(canonical(doc["payload"]).encode()).hexdigest()
     assert doc["payload"]["library_version"] == whiten.__version__
@@ -75,13 +75,13 @@ def test_wrong_format_or_version_is_rejected(tmp_path, fitted):
     b, _ = fitted
     f = b.save(tmp_path / "m.json")
     doc = json.loads(f.read_text())
-    doc["format"] = "whiten.baseline/4"
+    doc["format"] = "whiten.baseline/5"
     f.write_text(json.dumps(doc))
-    with pytest.raises(whiten.ModelFileError, match="version '4'"):
+    with pytest.raises(whiten.ModelFileError, match="version '5'"):
         whiten.load_baseline(f)
     doc["format"] = "something.else/1"
     f.write_text(json.dumps(doc))
-    with pytest.raises(whiten.ModelFileError, match="expected 'whiten.baseline/3'"):
+    with pytest.raises(whiten.ModelFileError, match="expected 'whiten.baseline/4'"):
         whiten.load_baseline(f)
     f.write_text(json.dumps([1, 2, 3]))
     with pytest.raises(whiten.ModelFileError, match="not a whiten model file"):

@@ -109,6 +109,7 @@ def test_loglik_baseline_missing_loader_is_clear(tmp_path, capsys, monkeypatch):
     import whiten
 
     monkeypatch.delattr(whiten, "load_baseline", raising=False)
+    monkeypatch.delitem(whiten._LAZY, "load_baseline", raising=False)  # names load lazily (PEP 562)
     _write_inputs(tmp_path)
     code = main(["loglik", str(tmp_path / "data.csv"), "--baseline", str(tmp_path / "m.json"),
                  "-o", str(tmp_path / "ll.csv")])

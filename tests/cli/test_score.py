@@ -68,8 +68,8 @@ def test_score_end_to_end(files, capsys, tmp_path):
     assert mpimg.imread(tmp_path / "bars.png").ndim == 3
     assert "scored 1000 rows" in stdout and "alarms at alpha=0.001" in stdout
     assert "significant digits" in stdout
-    assert "row s0101" in stdout or "row s0100" in stdout  # a worst row named by its label
-    assert "top sensors: bed_t" in stdout
+    assert "at s0101" in stdout or "at s0100" in stdout  # an episode peak named by its label
+    assert "  bed_t " in stdout  # the leading sensor of an episode
     assert stdout.strip().splitlines()[-1].startswith("Caution: a statistical screen, not a protective function")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["bars.png", "chart.png", "scores.csv"]
 

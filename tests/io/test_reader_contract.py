@@ -68,18 +68,18 @@ def test_outputs_follow_the_umask(tmp_path):
 @pytest.mark.skipif(not hasattr(signal, "SIGTERM") or os.name != "posix", reason="POSIX signals")
 def test_sigterm_leaves_no_temporary_file(tmp_path, monkeypatch, capsys):
     """SIGTERM in the middle of writing: exit 143, no output, no .part file."""
-    import whiten.monitor.stream as stream
+    import whiten.io.tables as tables
 
     rng = np.random.default_rng(3)
     pd.DataFrame(rng.normal(size=(50, 2)), columns=["a", "b"]).to_csv(tmp_path / "ref.csv", index=False)
     assert main(["baseline", str(tmp_path / "ref.csv"), "-o", str(tmp_path / "m.json")]) == 0
-    real = stream.write_csv_chunk
+    real = tables.write_csv_chunk
 
-    def write_then_die(frame, fh, *, header):
-        real(frame, fh, header=header)
+    def write_then_die(frame, fh, *, header, sep=","):
+        real(frame, fh, header=header, sep=sep)
         os.kill(os.getpid(), signal.SIGTERM)
 
-    monkeypatch.setattr(stream, "write_csv_chunk", write_then_die)
+    monkeypatch.setattr(tables, "write_csv_chunk", write_then_die)
     code = main(["score", str(tmp_path / "ref.csv"), "--baseline", str(tmp_path / "m.json"),
                  "-o", str(tmp_path / "s.csv"), "--chunksize", "10"])
     assert code == 143 and "terminated" in capsys.readouterr().err

@@ -81,12 +81,13 @@ def test_missing_cells_in_a_file_are_dropped_and_counted(tmp_path):
     df = _frame(300)
     df.loc[[7, 150], "ret"] = np.nan
     df.to_csv(tmp_path / "gaps.csv", index=False)
-    with pytest.warns(UserWarning, match=r"left out 2 incomplete row\(s\) of 300 \(first: row 7 \(index 't00007'\), column 'ret'"):
+    with pytest.warns(UserWarning, match=r"left out 2 incomplete row\(s\) of 300 \(first: data file .*gaps.csv': "
+                                   r"line 9, row 7 \(0-based data row, index 't00007'\), column 'ret'"):
         b = whiten.fit_baseline(tmp_path / "gaps.csv", index_column="stamp", chunksize=64)
     assert b.health.n_dropped == 2 and b.n == 298 and b.health.n_rows_read == 300
     ref = df.dropna().drop(columns="stamp").to_numpy()
     np.testing.assert_allclose(b.cov, np.cov(ref, rowvar=False), rtol=1e-12)  # numpy.cov on complete rows
-    with pytest.raises(whiten.InputError, match=r"row 7 \(index 't00007'\), column 'ret' is missing"):
+    with pytest.raises(whiten.InputError, match=r"line 9, row 7 \(0-based data row, index 't00007'\), column 'ret' is missing"):
         whiten.fit_baseline(tmp_path / "gaps.csv", index_column="stamp", missing="error")
 
 

@@ -262,7 +262,7 @@ def test_score_report_equals_its_csv(tmp_path, filler_batch):
     roles = page.tables["files"]["row_heads"]
     assert roles == ["input", "model"]
     assert page.tables["files"]["rows"][1][3][0] == _digest(model)
-    assert "whiten.baseline/3" in page.tables["files"]["rows"][1][0][0]
+    assert "whiten.baseline/4" in page.tables["files"]["rows"][1][0][0]
     assert "F(4, 496)" in rep.read_text(encoding="utf-8")                 # phase 'new' with m = 500, p = 4
 
 

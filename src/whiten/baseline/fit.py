@@ -23,6 +23,7 @@ from .health import BaselineHealth, health_from_factor
 from .inputs import Source
 from .model import Baseline
 from .modelfile import ESTIMATORS
+from .record import call_words, provenance_of, settings_of
 
 __all__ = ["fit_baseline"]
 
@@ -40,7 +41,8 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
                  chunksize: int | None = None, weights: Any = None, missing: str = "drop",
                  index_column: str | None = None, method: str = "auto", shrinkage: str = "ledoit-wolf",
                  support_fraction: float | None = None, seed: int | None = None,
-                 progress: bool | None = None, sep: str | None = None, decimal: str | None = None) -> Baseline:
+                 progress: bool | None = None, sep: str | None = None, decimal: str | None = None,
+                 na_values: Any = None, call: str | None = None) -> Baseline:
     """Fit a Gaussian baseline (mean and covariance factor) from reference rows.
 
     Parameters
@@ -92,6 +94,12 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     sep, decimal : str, optional
         How a table file separates fields and writes decimals (see
         :func:`whiten.io.tables.open_table`), e.g. ``sep=";", decimal=","``.
+    na_values : sequence of str, or str, optional
+        Codes of a table file that mean "no reading" (e.g. ``"-9999,ERR,n/a"``);
+        remembered in ``settings`` so scoring reads new rows the same way.
+    call : str, optional
+        How the fit was asked for, kept in ``provenance["call"]`` (the command
+        line passes its own words; default: this call, its options spelled out).
 
     Returns
     -------
@@ -159,7 +167,8 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     wvals, wcol = _weights_array(weights)
     if (wvals is not None or wcol is not None) and estimator != "sample":
         raise InputError(f"weights: supported with estimator='sample' only, not {estimator!r}")
-    src = Source(data, columns, chunksize, index_column, wcol, progress, sep=sep, decimal=decimal)
+    src = Source(data, columns, chunksize, index_column, wcol, progress, sep=sep, decimal=decimal,
+                 na_values=na_values)
     clean = Cleaner(src, missing, wvals)
     eq = Equilibrated(clean)  # columns at extreme scales reach the estimators as columns of order one
     if estimator == "sample":
@@ -170,7 +179,28 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
         b = _fit_robust(src, clean, eq, support_fraction, seed)
     b = _in_data_units(b, eq)
     clean.report()
-    return _with_law(b, clean, src, seed)
+    b = _with_law(b, clean, src, seed)
+    options = {"estimator": estimator, "columns": columns, "index_column": index_column, "missing": missing,
+               "method": method, "shrinkage": shrinkage if estimator == "shrinkage" else None,
+               "support_fraction": support_fraction, "seed": seed, "weights": weights if isinstance(weights, str)
+               else None, "sep": sep, "decimal": decimal, "na_values": na_values}
+    return _with_record(b, data, src, call or call_words(data, options), options)
+
+
+def _with_record(b: Baseline, data: Any, src: Source, call: str, options: dict) -> Baseline:
+    """The baseline with its settings and provenance (:mod:`whiten.baseline.record`)."""
+    from ..io.modelfile import utc_now
+
+    first, last = src.first_label, src.last_label
+    keep = {k: v for k, v in options.items() if k in ("method", "shrinkage", "support_fraction", "seed", "weights")
+            and v is not None}
+    settings = settings_of(columns=b.columns, index_column=src.index_column, first=first, last=last,
+                           na_values=src.na_values, missing=options["missing"], estimator=b.estimator, options=keep)
+    h = b.health
+    created = utc_now()
+    prov = provenance_of(data, rows_read=h.n_rows_read, rows_used=b.n, first=first, last=last, call=call,
+                         created_utc=created)
+    return b.with_record(settings, prov, created_utc=created)
 
 
 def _in_data_units(b: Baseline, eq: Equilibrated) -> Baseline:

@@ -17,7 +17,7 @@ import numpy as np
 from .. import _validate
 from .._settings import current
 from ..errors import InputError
-from ..io.tables import Table, open_table, progress, select_columns
+from ..io.tables import Table, open_table, progress, select_columns, table_progress
 
 __all__ = ["Source", "array_column_names", "is_frame"]
 
@@ -43,8 +43,12 @@ class Source:
 
     def __init__(self, data: Any, columns: Sequence[str] | None, chunksize: int | None,
                  index_column: str | None, weight_column: str | None, progress: bool | None, *,
-                 sep: str | None = None, decimal: str | None = None):
+                 sep: str | None = None, decimal: str | None = None, na_values: Any = None):
         self.weight_column = weight_column
+        self.first_label: Any = None  # the first and last row labels read (the training period)
+        self.last_label: Any = None
+        self.index_column = index_column
+        self.na_values: tuple = ()
         self.progress = progress
         self.chunksize = chunksize
         self.total_rows: int | None = None
@@ -57,10 +61,13 @@ class Source:
         if chunksize is not None and (not isinstance(chunksize, (int, np.integer)) or chunksize < 1):
             raise InputError(f"chunksize: expected a positive integer, got {chunksize!r}")
         if isinstance(data, (str, os.PathLike, Table)):
-            self._init_path(data if isinstance(data, Table) else open_table(os.fspath(data), sep=sep,
-                                                                             decimal=decimal), columns, index_column)
-        elif sep is not None or decimal is not None:
-            raise InputError("sep, decimal: read options of a table file; the data given is not a file path")
+            table = data if isinstance(data, Table) else open_table(os.fspath(data), sep=sep, decimal=decimal,
+                                                                    na_values=na_values)
+            self.na_values = table.na_values
+            self._init_path(table, columns, index_column)
+        elif sep is not None or decimal is not None or na_values is not None:
+            raise InputError("sep, decimal, na_values: read options of a table file; the data given is not a file "
+                             "path")
         elif is_frame(data):
             self._init_frame(data, columns, index_column)
         elif isinstance(data, np.ndarray) or (isinstance(data, (list, tuple)) and (
@@ -86,7 +93,7 @@ class Source:
 
         def frames():
             chunks = table.chunks(cols + extra, chunksize=self.chunksize, index_column=index_column)
-            return progress(chunks, desc="reading", enabled=self.progress)
+            return table_progress(table, chunks, self.progress, "reading")
 
         self._frames = frames
         self._array = None
@@ -199,7 +206,16 @@ class Source:
 
     # -- blocks
     def raw_blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None, np.ndarray, Any]]:
-        """(values with NaN, weights-from-column or None, positions, labels) per block."""
+        """(values with NaN, weights-from-column or None, positions, labels) per block; the first and last
+        labels seen are kept in ``first_label`` / ``last_label`` (row numbers without labels)."""
+        for vals, w, pos, lab in self._raw_blocks():
+            if len(pos):
+                if pos[0] == 0:
+                    self.first_label = lab[0] if lab is not None else 0
+                self.last_label = lab[-1] if lab is not None else int(pos[-1])
+            yield vals, w, pos, lab
+
+    def _raw_blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None, np.ndarray, Any]]:
         if self._array is not None:
             rows = max(1, int(current().block_rows))
             if self.chunksize is not None:

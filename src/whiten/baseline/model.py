@@ -60,7 +60,9 @@ class Baseline:
 
     def __init__(self, *, mean: np.ndarray, factor: Factor, n: int, columns: Sequence[str], estimator: str,
                  params: dict, health: BaselineHealth, weight_sum: float | None = None,
-                 created_utc: str | None = None, limit_law: SimulatedLaw | None = None):
+                 created_utc: str | None = None, limit_law: SimulatedLaw | None = None,
+                 settings: dict | None = None, provenance: dict | None = None, checksum: str | None = None,
+                 model_format: str | None = None):
         mean = np.array(mean, dtype=np.float64, copy=True)
         mean.setflags(write=False)
         cols = [str(c) for c in columns]
@@ -80,6 +82,11 @@ class Baseline:
         self._created = created_utc
         self._gaussian: Gaussian | None = None
         self._law = limit_law
+        self._settings = dict(settings or {})
+        self._provenance = dict(provenance or {})
+        #: the SHA-256 of the model file it was read from (None for a fitted, unsaved model), and its format
+        self.checksum = checksum
+        self.model_format = model_format
 
     # -- attributes
     @property
@@ -134,6 +141,33 @@ class Baseline:
         return self._created
 
     @property
+    def settings(self) -> dict:
+        """How the rows were read and fitted, for scoring to read new rows the same way
+        (:mod:`whiten.baseline.record`): ``index_column``, ``index_kind``, ``columns``, ``na_values``,
+        ``estimator`` and its options. Empty for a model file older than format 4."""
+        return dict(self._settings)
+
+    @property
+    def provenance(self) -> dict:
+        """Where the model came from (:mod:`whiten.baseline.record`): source file, size, SHA-256, rows
+        read and used, first and last index label, whiten version, creation time, the call. Empty for a
+        model file older than format 4."""
+        return dict(self._provenance)
+
+    def tag(self) -> str:
+        """How outputs name this model: its file checksum (12 hex digits) and training period."""
+        from .record import model_tag
+
+        return model_tag(self, self.checksum)
+
+    def with_record(self, settings: dict, provenance: dict, *, created_utc: str | None = None) -> Baseline:
+        """The same model carrying these settings and provenance (a new Baseline)."""
+        return Baseline(mean=self._mean, factor=self._factor, n=self._n, columns=self._columns,
+                        estimator=self._estimator, params=self._params, health=self._health,
+                        weight_sum=self._wsum, created_utc=created_utc or self._created, limit_law=self._law,
+                        settings=settings, provenance=provenance)
+
+    @property
     def gaussian(self) -> Gaussian:
         if self._gaussian is None:
             self._gaussian = Gaussian(self._mean, self._factor, columns=self._columns)
@@ -181,7 +215,8 @@ class Baseline:
                                     passes=h.passes)
         return Baseline(mean=mean, factor=f, n=self._n + sign * k, columns=self._columns,
                         estimator=self._estimator, params=params, health=health, weight_sum=wsum,
-                        created_utc=self._created)
+                        created_utc=self._created, settings=self._settings,
+                        provenance=dict(self._provenance, windowed=True) if self._provenance else None)
 
     def update(self, rows: Any) -> Baseline:
         """A new baseline with ``rows`` folded in, equal to refitting on the enlarged set.
@@ -237,7 +272,7 @@ class Baseline:
 
     # -- files (whiten.baseline.modelfile)
     def save(self, path: str | os.PathLike, *, force: bool = False):
-        """Write the baseline to a JSON model file (format ``whiten.baseline/3``), atomically.
+        """Write the baseline to a JSON model file (format ``whiten.baseline/4``), atomically.
 
         Raises
         ------

@@ -1,4 +1,4 @@
-"""The baseline model file: format ``whiten.baseline/3`` (JSON payload + SHA-256, :mod:`whiten.io.modelfile`).
+"""The baseline model file: format ``whiten.baseline/4`` (JSON payload + SHA-256, :mod:`whiten.io.modelfile`).
 
 Payload fields: ``columns``, ``n``, ``weight_sum``, ``mean``, ``factor_lower``
 (row ``i`` holds the ``i + 1`` entries of the lower factor's row), ``estimator``,
@@ -9,6 +9,12 @@ named the numerical route ``path``) and version 2 files (no ``limit_law``)
 are still read. Version 3 adds ``limit_law``: the simulated law of a new
 row's d2 (:class:`whiten.monitor.calibrated.SimulatedLaw` as a dict) or null;
 a version-2 reader would ignore it and use the wrong limit, hence the bump.
+Version 4 adds ``settings`` (how the rows were read and fitted: index column
+and its kind, sensors in order, missing-value codes, estimator and options;
+``whiten score`` reads new rows the same way) and ``provenance`` (source file,
+its size and SHA-256, rows read and used, first and last index label, whiten
+version, creation time, the command or call); see :mod:`whiten.baseline.record`.
+Files of versions 1-3 read with both empty.
 """
 
 from __future__ import annotations
@@ -30,8 +36,8 @@ from .health import BaselineHealth
 
 __all__ = ["MODEL_FORMAT", "ESTIMATORS", "payload_of", "save_payload", "read_payload"]
 
-MODEL_FORMAT = "whiten.baseline/3"
-_OLDER = ("whiten.baseline/1", "whiten.baseline/2")
+MODEL_FORMAT = "whiten.baseline/4"
+_OLDER = ("whiten.baseline/1", "whiten.baseline/2", "whiten.baseline/3")
 #: the estimators a model file may name
 ESTIMATORS = ("sample", "shrinkage", "robust")
 _FLOAT_FIELDS = ("rcond", "rcond_scaled", "digits_lost", "jitter", "jitter_relative")
@@ -52,6 +58,8 @@ def payload_of(baseline: Any) -> dict:
         "created_utc": baseline.created_utc,
         "library_version": __version__,
         "limit_law": None if getattr(baseline, "limit_law", None) is None else baseline.limit_law.to_dict(),
+        "settings": dict(getattr(baseline, "settings", None) or {}),
+        "provenance": dict(getattr(baseline, "provenance", None) or {}),
     })
 
 
@@ -101,7 +109,8 @@ def read_payload(path: str | os.PathLike) -> dict:
         Missing, damaged, edited, another format, or an inconsistent payload.
     """
     source = os.fspath(path)
-    payload, fmt = read_model(path, MODEL_FORMAT, older=_OLDER)
+    digest: dict = {}
+    payload, fmt = read_model(path, MODEL_FORMAT, older=_OLDER, digest_to=digest)
 
     def bad(msg: str) -> ModelFileError:
         return ModelFileError(f"model file {source!r}: {msg}")
@@ -133,6 +142,10 @@ def read_payload(path: str | os.PathLike) -> dict:
         est = str(payload["estimator"])
         law = payload.get("limit_law")
         law = None if law is None else SimulatedLaw.from_dict(law)
+        settings = payload.get("settings") or {}
+        provenance = payload.get("provenance") or {}
+        if not isinstance(settings, dict) or not isinstance(provenance, dict):
+            raise bad("settings and provenance must be JSON objects")
     except ModelFileError:
         raise
     except InputError as exc:
@@ -151,4 +164,5 @@ def read_payload(path: str | os.PathLike) -> dict:
     return dict(mean=mean, factor=f, n=n, columns=cols, estimator=est, params=dict(payload.get("params") or {}),
                 health=health, weight_sum=_weight_sum(payload.get("weight_sum", n), n, bad),
                 created_utc=payload.get("created_utc"),
-                limit_law=law)
+                limit_law=law, settings=settings, provenance=provenance, checksum=digest.get("sha256"),
+                model_format=fmt)

@@ -65,14 +65,39 @@ def add_reader_options(p) -> None:
                         "for .tsv); European spreadsheet exports use --sep ';' --decimal ','")
     p.add_argument("--decimal", choices=[".", ","], default=None,
                    help="decimal mark of the data file (default '.'); no thousands separator is ever read")
+    p.add_argument("--na-values", metavar="CODE,...", default=None,
+                   help="codes that mean a missing reading, comma-separated, e.g. --na-values=-9999,ERR,n/a (with '=' "
+                        "when the first code starts with '-'); an empty cell is always missing; `whiten score` "
+                        "defaults to the model's codes")
 
 
-def open_data(args, path=None):
-    """The data file of a command opened by the one reader, with its --sep/--decimal."""
+def add_progress_options(p) -> None:
+    """``--quiet``: no progress on standard error (the summary on standard output stays)."""
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress on standard error (a bar on a terminal, else a line about every 10 s); "
+                        "e.g. --quiet in a cron job")
+
+
+def progress_of(args) -> bool | None:
+    """The ``progress=`` of a library call for a command: False with --quiet, else None (decide by stderr)."""
+    return False if getattr(args, "quiet", False) else None
+
+
+def command_words(args) -> str:
+    """The command line as it was run (``whiten baseline healthy.csv -o m.json ...``), quoted for a shell."""
+    import shlex
+
+    return "whiten " + " ".join(shlex.quote(a) for a in getattr(args, "_argv", []))
+
+
+def open_data(args, path=None, *, na_values: bool = True):
+    """The data file of a command opened by the one reader, with its --sep/--decimal (and --na-values,
+    unless ``na_values=False``: the library then applies them, or the model's)."""
     from ..io.tables import open_table
 
     return open_table(args.data if path is None else path, sep=getattr(args, "sep", None),
-                      decimal=getattr(args, "decimal", None))
+                      decimal=getattr(args, "decimal", None),
+                      na_values=getattr(args, "na_values", None) if na_values else None)
 
 
 _PYTHON_ONLY = re.compile(r" \([^()]*\bin Python\)")

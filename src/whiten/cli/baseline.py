@@ -6,7 +6,7 @@ import argparse
 import math
 
 from ..errors import InputError
-from . import add_reader_options, open_data
+from . import add_progress_options, add_reader_options, command_words, open_data, progress_of
 
 EPILOG = """\
 examples:
@@ -15,8 +15,11 @@ examples:
       --index-column timestamp --chunksize 50000
   whiten baseline few_rows.csv -o loop.json --estimator shrinkage --force
   whiten baseline counts.csv -o loop.json --weight-column n_seen
+  whiten baseline station_week.csv -o station.json --index-column timestamp --na-values=-9999,ERR
 
-The model file is JSON (format whiten.baseline/3) with a SHA-256 checksum;
+The model file is JSON (format whiten.baseline/4) with a SHA-256 checksum; it
+records the settings (index column, sensors, codes, estimator) and where it
+came from (source file and its SHA-256, rows, training period, this command);
 `whiten inspect MODEL.json` describes it and `whiten score` uses it. Large
 files are read in chunks with bounded memory. Rows with a missing reading are
 left out and counted (--missing error stops at the first instead).
@@ -47,6 +50,7 @@ def add_parser(sub) -> None:
                    help="incomplete rows: drop and count them (default) or stop at the first")
     p.add_argument("--force", action="store_true", help="replace the model file if it exists")
     add_reader_options(p)
+    add_progress_options(p)
     p.set_defaults(func=run)
 
 
@@ -126,7 +130,8 @@ def run(args) -> int:
     refuse_inputs({"-o": args.output}, {"data": args.data})
     b = fit_baseline(open_data(args), estimator=args.estimator, columns=_columns(args.columns),
                      chunksize=args.chunksize, index_column=args.index_column, missing=args.missing,
-                     shrinkage=args.shrinkage, weights=args.weight_column)
+                     shrinkage=args.shrinkage, weights=args.weight_column, progress=progress_of(args),
+                     call=command_words(args))
     path = b.save(args.output, force=args.force)
     print(f"baseline from {args.data}")
     for line in health_lines(b):

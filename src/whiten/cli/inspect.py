@@ -83,6 +83,39 @@ def recomputed_health(b):
     return new, None
 
 
+def provenance_lines(b) -> list[str]:
+    """Where the model came from and how it reads rows (format 4 model files), in plain words."""
+    prov, st = getattr(b, "provenance", {}) or {}, getattr(b, "settings", {}) or {}
+    if not prov and not st:
+        fmt = getattr(b, "model_format", None)
+        return [f"provenance: none recorded (format {fmt}); fit the baseline again to record it"] if fmt else []
+    out = []
+    if getattr(b, "checksum", None):
+        out.append(f"model checksum (SHA-256): {b.checksum}")
+    if prov:
+        src = prov.get("source")
+        if prov.get("source_sha256"):
+            src = f"{src} ({prov.get('source_bytes')} bytes, SHA-256 {prov['source_sha256']})"
+        out.append(f"source: {src}")
+        out.append(f"rows: {prov.get('rows_read')} read, {prov.get('rows_used')} used")
+        if prov.get("first_index") is not None:
+            out.append(f"training period: {prov['first_index']} .. {prov['last_index']}")
+        out.append(f"made by: whiten {prov.get('whiten_version')} at {prov.get('created_utc')}")
+        out.append(f"call: {prov.get('call')}")
+        if prov.get("windowed"):
+            out.append("note: updated or downdated by a sliding window after the fit; the source is the first fit's")
+    if st:
+        opts = ", ".join(f"{k}={v}" for k, v in (st.get("options") or {}).items())
+        out.append(f"settings: estimator {st.get('estimator')}" + (f" ({opts})" if opts else "")
+                   + f"; missing rows: {st.get('missing')}")
+        idx = st.get("index_column")
+        out.append(f"index column: {idx!r} ({st.get('index_kind')}); `whiten score` uses it by default" if idx
+                   else "index column: none (rows labelled by number)")
+        if st.get("na_values"):
+            out.append(f"missing-value codes: {', '.join(st['na_values'])}")
+    return out
+
+
 def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
     from .. import pivoted_cholesky
     from ..errors import InputError
@@ -93,6 +126,7 @@ def inspect_lines(b, *, tol: float = 1e-6, top: int = 5) -> list[str]:
     out = []
     if b.created_utc:
         out.append(f"written: {b.created_utc}")
+    out.extend(provenance_lines(b))
     recomputed, note = recomputed_health(b)
     out += health_lines(_WithHealth(b, recomputed))
     if note:

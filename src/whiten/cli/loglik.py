@@ -9,7 +9,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..io.tables import select_columns
-from . import add_reader_options, open_data
+from . import add_progress_options, add_reader_options, open_data, progress_of
 
 EPILOG = """\
 examples:
@@ -46,10 +46,13 @@ def add_parser(sub) -> None:
     src.add_argument("--baseline", metavar="MODEL.json", help="model file from `whiten baseline`")
     src.add_argument("--mean", metavar="FILE", help="CSV with the mean (use with --cov)")
     p.add_argument("--cov", metavar="FILE", help="square CSV covariance with a header of names (use with --mean)")
-    p.add_argument("-o", "--output", required=True, metavar="OUT.csv", help="where to write the per-row values")
+    p.add_argument("-o", "--output", required=True, metavar="OUT.csv",
+                   help="where to write the per-row values; the name chooses the format: .csv, .tsv, .csv.gz, "
+                        ".tsv.gz or .parquet (e.g. -o loglik.parquet)")
     p.add_argument("--force", action="store_true", help="replace the output file if it exists")
     p.add_argument("--report", metavar="FILE.html", help="also write a one-file HTML report (whiten.report)")
     add_reader_options(p)
+    add_progress_options(p)
     p.set_defaults(func=run)
 
 
@@ -137,17 +140,20 @@ def _model(args):
 
 def run(args) -> int:
     from ..io.atomic import check_writable, refuse_inputs
+    from ..io.writers import output_format
     from ..likelihood.stream import loglik_file
 
     check_writable(args.output, force=args.force)
     report = getattr(args, "report", None)
     refuse_inputs({"-o": args.output, "--report": report},
                   {"data": args.data, "--baseline": args.baseline, "--mean": args.mean, "--cov": args.cov})
+    output_format(args.output, option="-o")  # the name chooses the format; refused before any work
     if report:
         check_writable(report, force=args.force, what="report")
     g, names = _model(args)
     # streamed into a temporary sibling, renamed into place only when complete
-    res = loglik_file(g, open_data(args), args.output, columns=names, force=args.force, keep_rows=bool(report))
+    res = loglik_file(g, open_data(args), args.output, columns=names, force=args.force, keep_rows=bool(report),
+                      progress=progress_of(args))
     total, evaluated, partial, empty, rows = res.total, res.evaluated, res.partial, res.empty, res.rows
     note = f"; {partial} with missing values evaluated on their marginal" if partial else ""
     note += f"; {empty} with no values skipped" if empty else ""

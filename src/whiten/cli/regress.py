@@ -68,7 +68,8 @@ def _read_table(path: str, args=None):
     """The table, opened by the one reader (whiten.io.tables): file checked, header read."""
     from ..io.tables import open_table
 
-    return open_table(path, sep=getattr(args, "sep", None), decimal=getattr(args, "decimal", None))
+    return open_table(path, sep=getattr(args, "sep", None), decimal=getattr(args, "decimal", None),
+                      na_values=getattr(args, "na_values", None))
 
 
 def _select(table, args):

@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
-from . import add_reader_options, open_data
+from . import add_progress_options, add_reader_options, open_data, progress_of
 
 EPILOG = """\
 examples:
@@ -18,6 +18,14 @@ examples:
   whiten score week32.csv --baseline pump_baseline.json -o scores.csv \\
       --index-column timestamp --alpha 0.0001 --fdr 0.05 --chart week32.png \\
       --contributions week32_why.png
+  whiten score station_test.csv --baseline station.json -o scores.parquet \
+      --episodes episodes.csv --episode-gap 5 --rename P1=suction_bar,P2=discharge_bar \
+      --na-values=-9999,ERR
+
+The model's index column and missing-value codes are used unless given;
+the summary names the model by its checksum and training period and lists
+the alarm episodes (runs of alarms joined across gaps of up to
+--episode-gap quiet rows) with their peak and leading sensors.
 
 The output has one line per input row, in input order: d2 (squared
 Mahalanobis distance), p_value, limit, alarm, n_observed, top_contributor,
@@ -47,6 +55,8 @@ CAUTION = ("Caution: a statistical screen, not a protective function; act on ala
            "own procedures and safety systems, and defer to local codes.")
 
 _WORST = 5
+_PEAKS = 6  # episode peaks drawn by --contributions
+_SHOWN = 10  # episodes listed on standard output
 
 
 def add_parser(sub) -> None:
@@ -58,7 +68,9 @@ def add_parser(sub) -> None:
         epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("data", metavar="DATA", help="table of sensor rows (.csv, .tsv, .parquet)")
     p.add_argument("--baseline", required=True, metavar="MODEL.json", help="model file from `whiten baseline`")
-    p.add_argument("-o", "--output", required=True, metavar="SCORES.csv", help="where to write the scores")
+    p.add_argument("-o", "--output", required=True, metavar="SCORES.csv",
+                   help="where to write the scores; the name chooses the format: .csv, .tsv, .csv.gz, .tsv.gz or "
+                        ".parquet (Parquet needs pyarrow), e.g. -o week32_scores.parquet")
     p.add_argument("--alpha", type=float, default=0.001, help="false-alarm probability per row (default 0.001)")
     p.add_argument("--phase", choices=["new", "reference", "known"], default="new",
                    help="law of the distance: new rows (default), the reference rows themselves, "
@@ -69,9 +81,22 @@ def add_parser(sub) -> None:
     p.add_argument("--chart", metavar="FILE.png", help="write a control chart of d2 with the limit and alarms "
                    "(x axis: the --index-column when it holds times or numbers, else the row number)")
     p.add_argument("--contributions", metavar="FILE.png",
-                   help="write bar charts of the drop contributions for the worst rows")
+                   help="write bar charts of the drop contributions at the peak row of each alarm episode, first "
+                        f"episodes first (at most {_PEAKS}; the worst rows when nothing alarmed), e.g. "
+                        "--contributions week32_why.png")
+    p.add_argument("--episodes", metavar="FILE.csv",
+                   help="also write the alarm episodes, one line each (start, end, rows, peak d2 and its row, "
+                        "leading sensors with their share of d2); the name chooses the format, e.g. "
+                        "--episodes week32_episodes.csv")
+    p.add_argument("--episode-gap", type=int, default=2, metavar="ROWS",
+                   help="quiet rows that may separate two runs of alarms in one episode (default 2; 0: only "
+                        "unbroken runs), e.g. --episode-gap 10")
     p.add_argument("--index-column", metavar="COL",
-                   help="column that labels rows (e.g. a timestamp); kept in the output")
+                   help="column that labels rows (e.g. a timestamp); kept in the output (default: the model's "
+                        "own index column, when the file has it)")
+    p.add_argument("--rename", metavar="OLD=NEW,...",
+                   help="rename file columns onto the model's sensor names, e.g. --rename P1=suction_bar,"
+                        "P2=discharge_bar; unmatched names are listed as missing and extra columns")
     p.add_argument("--chunksize", type=int, default=None, metavar="N", help="rows per chunk (default 100000)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
     p.add_argument("--report", metavar="FILE.html",
@@ -90,6 +115,7 @@ def add_parser(sub) -> None:
                    help="also alarm when K of the last M rows exceed a per-row level chosen so that this rule's "
                         "false-alarm rate per healthy row is alpha (e.g. 3/5)")
     add_reader_options(p)
+    add_progress_options(p)
     p.set_defaults(func=run)
 
 
@@ -116,6 +142,9 @@ def run(args) -> int:
         parse_persist(args.persist, "--persist")
     if args.chunksize is not None and args.chunksize < 1:
         raise InputError(f"--chunksize: must be a positive integer, got {args.chunksize}")
+    from ..monitor.episodes import check_gap
+
+    check_gap(args.episode_gap, "--episode-gap")
     if args.chart_points < 1:
         raise InputError(f"--chart-points: must be a positive integer, got {args.chart_points}")
     model_path = Path(args.baseline)
@@ -133,21 +162,35 @@ def run(args) -> int:
             raise InputError("--contributions names the same file as -o or --chart")
     if getattr(args, "report", None):
         check_writable(args.report, force=args.force, what="report")
+    if args.episodes:
+        check_writable(args.episodes, force=args.force, what="episodes")
     refuse_inputs({"-o": out, "--chart": args.chart, "--contributions": args.contributions,
-                   "--report": getattr(args, "report", None)}, {"data": args.data, "--baseline": model_path})
+                   "--report": getattr(args, "report", None), "--episodes": args.episodes},
+                  {"data": args.data, "--baseline": model_path})
+    from ..io.writers import output_format
+
+    output_format(args.output, option="-o")  # the name chooses the format; refused before any work
+    if args.episodes:
+        output_format(args.episodes, option="--episodes")
     baseline = load_baseline(model_path)
     # the summary, the charts and the report come from the digest (whiten.monitor.ScoreDigest):
     # counts, the worst rows whole and a control-chart trace pooled beyond --chart-points rows
-    digest = score_file(baseline, open_data(args), out, alpha=args.alpha, phase=args.phase, fdr=args.fdr,
+    digest = score_file(baseline, open_data(args, na_values=False), out, alpha=args.alpha, phase=args.phase,
+                        fdr=args.fdr,
                         index_column=args.index_column, chunksize=args.chunksize, force=args.force,
-                        chart_points=args.chart_points, worst=_WORST, progress=None,
-                        ewma=args.ewma, ewma_arl=args.ewma_arl, persist=args.persist)
+                        chart_points=args.chart_points, worst=_WORST, progress=progress_of(args),
+                        ewma=args.ewma, ewma_arl=args.ewma_arl, persist=args.persist,
+                        gap=args.episode_gap, episodes_path=args.episodes, na_values=args.na_values,
+                        rename=args.rename)
     at = digest.attrs
     sensors = list(at["sensors"])
     n_rows = digest.n_rows
+    tag = baseline.tag()
     lines = [
         f"scored {n_rows} rows of {args.data} against {args.baseline} "
         f"({len(sensors)} sensors, {at['reference_rows']} reference rows, phase {at['phase']!r})",
+        f"model: {tag}" if tag else f"model: {args.baseline} (format {baseline.model_format}: no provenance; "
+                                    "refit it to have one)",
         f"limit ({at.get('limit_law', 'law')} law): {at['limit_basis']}",
         f"model accuracy: distances trusted to about {at['digits_trusted']:.0f} significant "
         f"digits (jitter {at['jitter']:g})",
@@ -163,44 +206,51 @@ def run(args) -> int:
                      f"{digest.n_none} with no sensor (not scored)")
     if digest.ignored_columns:
         lines.append(f"columns not in the model (ignored): {', '.join(digest.ignored_columns)}")
-    worst = digest.worst_by_p()
-    if len(worst):
-        lines.append("worst rows (drop contribution: d2 lost without the sensor):")
-        drop_cols = [f"drop:{c}" for c in sensors]
-        drops = worst[drop_cols].to_numpy(dtype=float)
-        for i, lab in enumerate(worst.index):
-            row = np.nan_to_num(drops[i], nan=-np.inf)
-            top = [j for j in np.argsort(-row, kind="stable")[:3] if np.isfinite(row[j])]
-            top_txt = ", ".join(f"{sensors[j]} {drops[i, j]:.3g}" for j in top)
-            lines.append(f"  row {lab}: d2 {worst['d2'].iloc[i]:.4g}, p {worst['p_value'].iloc[i]:.2g}; "
-                         f"top sensors: {top_txt}")
+    lines.extend(episode_lines(digest, args.episode_gap))
+    if digest.n_episodes == 0:
+        lines.extend(_worst_lines(digest, sensors))
     lines.append(f"scores written to {out}")
+    if args.episodes:
+        lines.append(f"episodes written to {args.episodes} ({digest.n_episodes})")
+    for note in digest.notes:
+        lines.append(f"note: {note}")
     trace = digest.trace() if (args.chart or getattr(args, "report", None)) else None
     time_axis = None
-    if trace is not None and args.index_column is not None:
+    if trace is not None and digest.index_column is not None:
         # each chart point's label (a pooled point: its first row's), as times or numbers when they are
         time_axis = _time_axis([trace.index.to_numpy()])
     if args.chart:
         from ..monitor.charts import distance_chart
 
-        distance_chart(trace, args.chart, force=args.force, time=time_axis,
-                       title=f"Squared Mahalanobis distance per row: {os.path.basename(str(args.data))}")
+        distance_chart(trace, args.chart, force=args.force, time=time_axis, spans=episode_spans(digest, time_axis),
+                       title=f"Squared Mahalanobis distance per row: {os.path.basename(str(args.data))}",
+                       subtitle=tag or None)
         lines.append(f"chart written to {args.chart}"
                      + (f" (each point: the largest d2 of {digest.rows_per_point} consecutive rows)"
                         if digest.rows_per_point > 1 else ""))
     if args.contributions:
         from ..monitor.charts import contribution_chart
 
-        pick = digest.worst_by_d2()
-        if len(pick):
-            contribution_chart(pick, args.contributions, rows=min(4, len(pick)), force=args.force)
-            lines.append(f"contribution chart written to {args.contributions}")
+        if digest.n_episodes:
+            pick = digest.episode_peaks(_PEAKS)
+            contribution_chart(pick, args.contributions, rows=len(pick), in_order=True, force=args.force,
+                               title="At the peak of each alarm episode (number: plain deviation in sd)")
+            shown = (f"the peak rows of the first {len(pick)} of {digest.n_episodes} episodes (at most {_PEAKS})"
+                     if digest.n_episodes > len(pick) else f"the peak row of each of the {len(pick)} episode(s)")
+            lines.append(f"contribution chart written to {args.contributions}: {shown}")
         else:
-            lines.append("no row could be scored: no contribution chart written")
+            pick = digest.worst_by_d2()
+            if len(pick):
+                contribution_chart(pick, args.contributions, rows=min(4, len(pick)), force=args.force)
+                lines.append(f"contribution chart written to {args.contributions}: no alarm, so the "
+                             f"{min(4, len(pick))} rows with the largest d2")
+            else:
+                lines.append("no row could be scored: no contribution chart written")
     if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report), from the digest
         from ..report import cli_provenance, monitoring_report
 
-        monitoring_report(digest, baseline, title=f"Scores of {os.path.basename(str(args.data))}",
+        monitoring_report(digest, baseline, title=f"Scores of {os.path.basename(str(args.data))}"
+                          + (f" ({tag})" if tag else ""),
                           time=time_axis,
                           provenance=cli_provenance(args, inputs=[args.data], model=args.baseline)
                           ).write(args.report, force=args.force)
@@ -213,6 +263,42 @@ def run(args) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
     return 0
+
+
+def _worst_lines(digest, sensors) -> list[str]:
+    """The worst rows by p-value (shown when no row alarmed)."""
+    worst = digest.worst_by_p()
+    if not len(worst):
+        return []
+    lines = ["largest distances (no alarm; drop contribution: d2 lost without the sensor):"]
+    drop_cols = [f"drop:{c}" for c in sensors]
+    drops = worst[drop_cols].to_numpy(dtype=float)
+    for i, lab in enumerate(worst.index[:3]):
+        row = np.nan_to_num(drops[i], nan=-np.inf)
+        top = [j for j in np.argsort(-row, kind="stable")[:3] if np.isfinite(row[j])]
+        top_txt = ", ".join(f"{sensors[j]} {drops[i, j]:.3g}" for j in top)
+        lines.append(f"  row {lab}: d2 {worst['d2'].iloc[i]:.4g}, p {worst['p_value'].iloc[i]:.2g}; "
+                     f"top sensors: {top_txt}")
+    return lines
+
+
+def episode_lines(digest, gap: int) -> list[str]:
+    """The episode table of the summary: one line per episode, the first few, and how many more."""
+    n = digest.n_episodes
+    rule = f"runs of alarms, joined across gaps of up to {gap} quiet row(s)"
+    if n == 0:
+        return [f"alarm episodes ({rule}): none"]
+    ep = digest.episodes()
+    out = [f"alarm episodes ({rule}): {n}",
+           "  #  start .. end  rows (alarms)  peak d2 at  leading sensors (share of d2 at the peak)"]
+    for num, e in ep.head(_SHOWN).iterrows():
+        leads = ", ".join(f"{e[f'lead_{i}']} {100 * e[f'share_{i}']:.0f}%" for i in (1, 2, 3)
+                          if e[f"lead_{i}"] and np.isfinite(e[f"share_{i}"]))
+        out.append(f"  {num}  {e['start']} .. {e['end']}  {e['rows']} ({e['alarm_rows']})  "
+                   f"{e['peak_d2']:.4g} at {e['peak']}  {leads}")
+    if n > _SHOWN:
+        out.append(f"  ... and {n - _SHOWN} more episode(s); --episodes FILE writes every one")
+    return out
 
 
 def weak_lines(weak) -> list[str]:
@@ -245,6 +331,18 @@ def _drift_lines(digest) -> list[str]:
 
         out.append(f"  {EWMA_CAUTION}")
     return out
+
+
+def episode_spans(digest, time_axis) -> list[tuple]:
+    """The episodes as (x0, x1) stretches of the chart's axis: times when it shows times, else rows."""
+    if not digest.n_episodes:
+        return []
+    ep = digest.episodes()
+    if time_axis is not None:
+        ends = _time_axis([ep["start"].to_numpy(), ep["end"].to_numpy()])
+        if ends is not None and len(ends) == 2 * len(ep):
+            return list(zip(ends[: len(ep)], ends[len(ep):]))
+    return list(zip(ep["first_row"].to_numpy(), ep["last_row"].to_numpy() + 1))
 
 
 def _time_axis(labels):

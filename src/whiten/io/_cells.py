@@ -13,6 +13,7 @@ import gzip
 import io
 import lzma
 import os
+import re
 import zipfile
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -28,14 +29,18 @@ _TEXT_OPENERS: dict[str, Callable[..., IO[str]]] = {".gz": gzip.open, ".bz2": bz
 
 
 def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, where: str,
-                path: Path, fmt: str, *, sep: str = ",", decimal: str = "."):
+                path: Path, fmt: str, *, sep: str = ",", decimal: str = ".", na_values: Sequence[str] = ()):
     """``df[columns]`` as one float64 DataFrame on ``index``; a cell that is not a number is an InputError.
 
     The values go straight into one column-major (rows x columns) array, so
     the frame's ``to_numpy()`` is a view of it and callers convert nothing
-    again. Missing cells stay NaN.
+    again. Missing cells stay NaN, and so does a cell holding one of ``na_values``
+    (its text, or for a numeric code its number).
     """
     import pandas as pd
+
+    codes = set(na_values)
+    numbers = np.array([v for v in (_as_number(c) for c in codes) if v is not None], dtype=np.float64)
 
     n = len(df)
     out = np.empty((n, len(columns)), dtype=np.float64, order="F")
@@ -46,8 +51,15 @@ def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, whe
                 disclose_integer_rounding([(str(c), s.to_numpy())], None, name=where, first_row=first_row,
                                           where=lambda r: _row_words(path, fmt, r, sep))
             out[:, j] = s.to_numpy(dtype=np.float64, na_value=np.nan)
+            if numbers.size:
+                out[np.isin(out[:, j], numbers), j] = np.nan
             continue
         text = s.astype("string").str.strip()
+        if codes:
+            coded = text.isin(codes).to_numpy(dtype=bool, na_value=False)
+            if coded.any():
+                s = s.where(~coded, None)
+                text = text.where(~coded, pd.NA)
         grouped = text.str.contains(_GROUPED[decimal], regex=True, na=False).to_numpy(dtype=bool)
         if decimal != ".":
             text = text.str.replace(decimal, ".", regex=False)
@@ -63,6 +75,8 @@ def float_block(df: Any, columns: Sequence[str], first_row: int, index: Any, whe
             digits = np.array([int(t) for t in text.iloc[at]], dtype=object)
             disclose_integer_rounding([(str(c), digits)], None, name=where,
                                       where=lambda r, at=at: _row_words(path, fmt, first_row + int(at[r]), sep))
+        if numbers.size:
+            out[np.isin(out[:, j], numbers), j] = np.nan
     _refuse_infinite(out, columns, first_row, index, where, path, fmt, sep)
     return pd.DataFrame(out, index=index, columns=list(columns), copy=False)
 
@@ -99,6 +113,10 @@ def _refuse_infinite(out: np.ndarray, columns: Sequence[str], first_row: int, in
 _GROUPED = {".": r"^[+-]?\d{1,3}(?:[,' ]\d{3})+(?:\.\d*)?$", ",": r"\."}
 
 
+# a date or time stamp: 2026-05-04, 04/05/2026, 2026-05-04T06:15, 06:15:00 ...
+_DATE_LIKE = re.compile(r"^(\d{4}[-/.]\d{1,2}[-/.]\d{1,2}|\d{1,2}[-/.]\d{1,2}[-/.]\d{2,4}|\d{1,2}:\d{2})")
+
+
 def _not_numeric(where: str, path: Path, fmt: str, column: str, row: int, value: Any,
                  sep: str = ",", decimal: str = ".") -> InputError:
     line = data_line(path, fmt, row, sep) if fmt != "parquet" else None
@@ -110,9 +128,20 @@ def _not_numeric(where: str, path: Path, fmt: str, column: str, row: int, value:
     elif decimal == "." and "," in text and text.replace(",", "").replace(".", "").lstrip("+-").isdigit():
         why = ("',' is a thousands separator or a decimal comma, which whiten never guesses; remove the "
                "thousands separators, or for a decimal comma pass --sep ';' --decimal ','")
+    elif _DATE_LIKE.match(text):
+        why = (f"It looks like a date or time: if the column labels the rows, name it with --index-column "
+               f"{column} (index_column={column!r} in Python)")
     else:
         why = "Fix the cell, or leave the column out with --columns (columns=[...] in Python)"
     return InputError(f"{where}: column {column!r} is not numeric: {at} holds {value!r}. {why}")
+
+
+def _as_number(code: str) -> float | None:
+    try:
+        v = float(code)
+    except ValueError:
+        return None
+    return v if np.isfinite(v) else None
 
 
 def header_fields(path: Path, sep: str) -> list[str] | None:

@@ -79,6 +79,38 @@ def checksum(payload: dict) -> str:
     return hashlib.sha256(canonical(payload).encode("ascii")).hexdigest()
 
 
+_MAGIC = ((b"\x89PNG", "a PNG image"), (b"PAR1", "a Parquet table"), (b"\x1f\x8b", "gzip-compressed data"),
+          (b"PK\x03\x04", "a zip archive"), (b"BZh", "bzip2-compressed data"), (b"%PDF", "a PDF document"))
+
+
+def _binary_kind(p: Path) -> str:
+    """``": it looks like a Parquet table"`` from a file's first bytes, or ``""``."""
+    try:
+        with open(p, "rb") as fh:
+            head = fh.read(8)
+    except OSError:
+        return ""
+    for magic, word in _MAGIC:
+        if head.startswith(magic):
+            return f": it looks like {word}"
+    return ""
+
+
+def _table_kind(text: str) -> str | None:
+    """``"a CSV table of 4 columns (header: stamp, a, b, c) and 120 data lines"`` when text reads as a table."""
+    lines = [ln for ln in text.splitlines()[:50] if ln.strip()]
+    if not lines or lines[0].lstrip().startswith(("{", "[")):
+        return None
+    for sep, word in ((",", "CSV"), ("\t", "tab-separated"), (";", "semicolon-separated")):
+        n = lines[0].count(sep)
+        if n and all(ln.count(sep) == n for ln in lines[:10]):
+            names = [c.strip() for c in lines[0].split(sep)]
+            shown = ", ".join(names[:6]) + (", ..." if len(names) > 6 else "")
+            rows = sum(1 for ln in text.splitlines()[1:] if ln.strip())
+            return f"a {word} table of {n + 1} columns (header: {shown}) and {rows} data line(s)"
+    return "plain text" if len(lines) > 1 else None
+
+
 def write_model(path: str | os.PathLike, fmt: str, payload: dict, *, force: bool = False) -> Path:
     """Write ``payload`` under format name ``fmt`` (e.g. ``"whiten.baseline/1"``), atomically.
 
@@ -93,10 +125,12 @@ def write_model(path: str | os.PathLike, fmt: str, payload: dict, *, force: bool
     return write_text(path, text, force=force, what="model")
 
 
-def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()) -> tuple[dict, str]:
+def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = (),
+               digest_to: dict | None = None) -> tuple[dict, str]:
     """Read and verify a model file written by :func:`write_model`; returns ``(payload, format)``.
 
-    ``older`` lists earlier versions of ``fmt`` the caller can still read.
+    ``older`` lists earlier versions of ``fmt`` the caller can still read;
+    ``digest_to``, a dict, receives the verified checksum under ``"sha256"``.
 
     Raises
     ------
@@ -117,14 +151,20 @@ def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()
                                  "file, or a model too large to load safely")
         text = p.read_text(encoding="utf-8")
     except UnicodeDecodeError:
-        raise ModelFileError(f"model file {str(p)!r} is not text; it is not a whiten model file") from None
+        raise ModelFileError(f"model file {str(p)!r} is not text{_binary_kind(p)}; it is not a whiten model "
+                             "file") from None
     except OSError as exc:
         raise ModelFileError(f"model file {str(p)!r} cannot be read ({exc.strerror or exc})") from None
     if not text.strip():
-        raise ModelFileError(f"model file {str(p)!r} is empty")
+        raise ModelFileError(f"model file {str(p)!r} is empty ({size} bytes{', only blank space' if size else ''}); "
+                             "it is not a whiten model file: fit one with `whiten baseline`")
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
+        table = _table_kind(text)
+        if table:
+            raise ModelFileError(f"model file {str(p)!r} is not a model file: it looks like {table}. Fit a model "
+                                 f"from a table with `whiten baseline {p.name} -o MODEL.json`") from None
         raise ModelFileError(
             f"model file {str(p)!r} is not valid JSON (line {exc.lineno}, column {exc.colno}): "
             "it is truncated or damaged; write it again") from None
@@ -135,7 +175,8 @@ def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()
         raise ModelFileError(f"model file {str(p)!r} is nested deeper than {MAX_DEPTH} levels; it is not a "
                              "whiten model file")
     if not isinstance(doc, dict) or "format" not in doc:
-        raise ModelFileError(f"model file {str(p)!r} has no 'format' field; it is not a whiten model file")
+        kind = "a JSON list" if isinstance(doc, list) else ("a JSON object" if isinstance(doc, dict) else "JSON")
+        raise ModelFileError(f"model file {str(p)!r} is {kind} with no 'format' field; it is not a whiten model file")
     got = doc.get("format")
     want_name, _, want_ver = fmt.partition("/")
     if not isinstance(got, str) or got.partition("/")[0] != want_name:
@@ -155,4 +196,6 @@ def read_model(path: str | os.PathLike, fmt: str, *, older: tuple[str, ...] = ()
         raise ModelFileError(
             f"model file {str(p)!r} failed its SHA-256 check (stored {digest[:12]}..., computed "
             f"{actual[:12]}...): it was edited or damaged after writing; refit or restore it")
+    if digest_to is not None:
+        digest_to["sha256"] = actual
     return payload, got

@@ -23,9 +23,11 @@ import numpy as np
 from .._validate import select_columns
 from ..errors import InputError
 from ._cells import check_field_counts, float_block, header_fields
+from .options import na_list, rename_map
 
 __all__ = ["open_table", "Table", "select_columns", "read_table_chunks", "table_columns", "table_format",
-           "existing_file", "progress", "write_csv_chunk", "DEFAULT_CHUNKSIZE", "reader_options"]
+           "existing_file", "progress", "write_csv_chunk", "DEFAULT_CHUNKSIZE", "reader_options", "table_progress",
+           "na_list", "rename_map"]
 
 DEFAULT_CHUNKSIZE = 100_000
 _COMPRESSED = (".gz", ".bz2", ".xz", ".zip", ".zst")
@@ -67,7 +69,8 @@ def existing_file(path: str | os.PathLike, *, missing: str = "data file {path!r}
     return p
 
 
-def open_table(path: str | os.PathLike, *, sep: str | None = None, decimal: str | None = None) -> Table:
+def open_table(path: str | os.PathLike, *, sep: str | None = None, decimal: str | None = None,
+               na_values: Sequence[str] | str | None = None) -> Table:
     """Open a table file: check it exists, tell its format, read its header once.
 
     Parameters
@@ -83,6 +86,11 @@ def open_table(path: str | os.PathLike, *, sep: str | None = None, decimal: str 
         ``"."`` (default) or ``","``. No thousands separator is read: a
         cell such as ``1,234`` (decimal ``"."``) or ``1.234`` (decimal ``","``)
         is an error, never a silent guess.
+    na_values : sequence of str, or str, optional
+        Codes that mean "no reading" (e.g. ``["-9999", "ERR", "n/a"]``, or
+        ``"-9999,ERR,n/a"``): a cell whose text is one of them, or whose number
+        equals a numeric one, is missing (NaN), in text and Parquet files alike.
+        An empty cell is always missing.
 
     Returns
     -------
@@ -129,7 +137,7 @@ def open_table(path: str | os.PathLike, *, sep: str | None = None, decimal: str 
                        for d in dup)
         raise InputError(f"data file {str(p)!r}: the header names a column more than once ({at}); "
                          "give every column its own name")
-    return Table(p, fmt, names, sep=use, decimal=dec)
+    return Table(p, fmt, names, sep=use, decimal=dec, na_values=na_list(na_values))
 
 
 def reader_options(sep: str | None, decimal: str | None) -> tuple[str | None, str]:
@@ -178,13 +186,19 @@ class Table:
         The header (Parquet: the schema's names), read once.
     """
 
-    def __init__(self, path: Path, fmt: str, columns: list[str], *, sep: str = ",", decimal: str = "."):
+    def __init__(self, path: Path, fmt: str, columns: list[str], *, sep: str = ",", decimal: str = ".",
+                 na_values: Sequence[str] = ()):
         self.path = path
         self.format = fmt
         self.columns = columns
         self.sep = sep
         self.decimal = decimal
+        self.na_values = tuple(na_values)
         self._shape_checked = fmt == "parquet"
+        self._file_names: dict[str, str] = {}  # renamed column -> its name in the file (see rename)
+        #: bytes of the file read so far by the running :meth:`chunks` (for progress), and the file's size
+        self.bytes_read = 0
+        self.size = path.stat().st_size if path.exists() else 0
 
     @property
     def where(self) -> str:
@@ -207,6 +221,30 @@ class Table:
 
     def __repr__(self) -> str:
         return f"Table({str(self.path)!r}, format={self.format!r}, columns={self.columns})"
+
+    def rename(self, mapping: dict[str, str] | None) -> Table:
+        """The same file with columns renamed (``{"name in the file": "name wanted"}``); see :func:`rename_map`.
+
+        Raises
+        ------
+        InputError
+            A name to rename that is not in the header (the header is listed), or
+            a new name that another column already has.
+        """
+        if not mapping:
+            return self
+        gone = [old for old in mapping if old not in self.columns]
+        if gone:
+            raise InputError(f"--rename / rename: {self.where} has no column {', '.join(map(repr, gone))}; its "
+                             f"columns are {self.columns}")
+        new = [mapping.get(c, c) for c in self.columns]
+        dup = sorted({c for c in new if new.count(c) > 1})
+        if dup:
+            raise InputError(f"--rename / rename: after renaming, {self.where} would have two columns named "
+                             f"{', '.join(map(repr, dup))}")
+        out = Table(self.path, self.format, new, sep=self.sep, decimal=self.decimal, na_values=self.na_values)
+        out._file_names = {n: o for n, o in zip(new, self.columns) if n != o}
+        return out
 
     def select(self, columns: Sequence[str] | None = None, *, index_column: str | None = None,
                what: str = "the columns asked for", also: Sequence[str] = ()) -> list[str]:
@@ -255,39 +293,84 @@ class Table:
         if fmt == "parquet":
             pq = _pyarrow_parquet()
             try:
-                batches = pq.ParquetFile(str(p)).iter_batches(batch_size=chunksize, columns=read)
+                batches = pq.ParquetFile(str(p)).iter_batches(
+                    batch_size=chunksize, columns=[self._file_names.get(c, c) for c in read])
             except Exception as exc:
                 raise InputError(f"{self.where} is not a readable Parquet file ({exc})") from None
             frames: Iterable = (b.to_pandas() for b in batches)
+            raw = None
         else:
             if not self._shape_checked:  # a line with more or fewer fields than the header is refused
                 check_field_counts(p, self.sep, len(self.columns), self.where)
                 self._shape_checked = True
             # every column as text would be slow; pandas infers, then each column is checked. No
             # usecols: with it pandas reads a long row's first fields silently; names= keeps ours
-            frames = pd.read_csv(p, header=0, names=self.columns, chunksize=chunksize, sep=self.sep,
-                                 decimal=self.decimal, thousands=None, skipinitialspace=True)
+            # read through our own handle, so its position tells the bytes read (progress)
+            raw = open(p, "rb")  # closed in the finally below
+            frames = pd.read_csv(raw, header=0, names=self.columns, chunksize=chunksize, sep=self.sep,
+                                 decimal=self.decimal, thousands=None, skipinitialspace=True,
+                                 compression=_compression(p))
         offset = 0
+        self.bytes_read = 0
         try:
             for df in frames:
                 if len(df) == 0:
                     continue
-                df.columns = [str(c) for c in df.columns]
+                back = {o: n for n, o in self._file_names.items()}
+                df.columns = [back.get(str(c), str(c)) if fmt == "parquet" else str(c) for c in df.columns]
                 if index_column is not None:
                     idx = pd.Index(df[index_column].to_numpy(), name=index_column)
                 else:
                     idx = pd.RangeIndex(offset, offset + len(df))
-                yield float_block(df, cols, offset, idx, self.where, p, fmt, sep=self.sep,
-                                  decimal=self.decimal)
+                block = float_block(df, cols, offset, idx, self.where, p, fmt, sep=self.sep,
+                                    decimal=self.decimal, na_values=self.na_values)
                 offset += len(df)
+                self.bytes_read = self._position(raw, offset)
+                yield block
         except pd.errors.ParserError as exc:
             raise InputError(f"{self.where}: could not parse near row {offset} ({exc})") from None
         finally:
             close = getattr(frames, "close", None)
             if close is not None:  # the file is closed whether the rows were all read or an error stopped them
                 close()
+            if raw is not None:
+                raw.close()
         if offset == 0:
             raise InputError(f"{self.where} has a header but no data rows")
+
+
+    def _position(self, raw: Any, rows: int) -> int:
+        """Bytes of the file read after ``rows`` rows: the handle's position (text) or the share of rows
+        (Parquet)."""
+        if raw is not None:
+            try:
+                return min(int(raw.tell()), self.size)
+            except (OSError, ValueError):
+                return self.bytes_read
+        total = self._parquet_rows()
+        return self.size if not total else int(self.size * min(rows / total, 1.0))
+
+    def _parquet_rows(self) -> int:
+        try:
+            return int(_pyarrow_parquet().ParquetFile(str(self.path)).metadata.num_rows)
+        except Exception:  # progress only: a file that cannot say gives no share
+            return 0
+
+
+def table_progress(table: Table, chunks: Iterable, enabled: bool | None, desc: str) -> Iterable:
+    """``chunks`` of ``table`` with progress on stderr: bytes read of the file's size and the time left
+    (:mod:`whiten.io.progress`); ``enabled=None`` is a bar on a terminal, else a line about every 10 s."""
+    from .progress import with_progress
+
+    return with_progress(chunks, lambda: table.bytes_read, table.size, desc=desc, enabled=enabled)
+
+
+def _compression(p: Path) -> str | None:
+    name = p.name.lower()
+    for ext, kind in ((".gz", "gzip"), (".bz2", "bz2"), (".xz", "xz"), (".zip", "zip"), (".zst", "zstd")):
+        if name.endswith(ext):
+            return kind
+    return None
 
 
 def table_columns(path: str | os.PathLike) -> list[str]:
@@ -364,11 +447,11 @@ def progress(iterable: Iterable, *, desc: str = "chunks", total: int | None = No
     return tqdm(iterable, desc=desc, total=total, unit=unit, file=sys.stderr, leave=False)
 
 
-def write_csv_chunk(frame, fh, *, header: bool) -> None:
+def write_csv_chunk(frame, fh, *, header: bool, sep: str = ",") -> None:
     """Append one chunk of a result table (index first) to an open text file, in whiten's one CSV style.
 
     The style, the same whatever optional packages are installed: comma
-    separated, ``\\n`` line ends, numbers as the shortest decimal that reads
+    separated (``sep="\\t"`` for a .tsv), ``\\n`` line ends, numbers as the shortest decimal that reads
     back to the same float64 (Python's ``repr``), a missing value as an empty
     field, booleans as ``true``/``false``, and text quoted only when it holds
     a comma, a quote or a line break (a quote inside doubled), as the csv
@@ -385,4 +468,4 @@ def write_csv_chunk(frame, fh, *, header: bool) -> None:
         out = frame.copy(deep=False)
         for c in flags:
             out[c] = np.where(frame[c].to_numpy(), "true", "false")
-    out.to_csv(fh, header=header, index=True, lineterminator="\n", na_rep="", quoting=csv.QUOTE_MINIMAL)
+    out.to_csv(fh, header=header, index=True, lineterminator="\n", na_rep="", quoting=csv.QUOTE_MINIMAL, sep=sep)

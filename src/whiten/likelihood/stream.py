@@ -16,8 +16,9 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from ..io.atomic import atomic_open, check_writable, same_file
-from ..io.tables import Table, open_table
+from ..io.atomic import check_writable, same_file
+from ..io.tables import Table, open_table, table_progress
+from ..io.writers import open_output, output_format
 
 __all__ = ["loglik_file", "LoglikFileSummary"]
 
@@ -55,7 +56,8 @@ class LoglikFileSummary:
 
 def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: str | os.PathLike, *,
                 columns: Sequence[str] | None = None, chunksize: int | None = None, force: bool = False,
-                keep_rows: bool = False, sep: str | None = None, decimal: str | None = None) -> LoglikFileSummary:
+                keep_rows: bool = False, sep: str | None = None, decimal: str | None = None,
+                progress: bool | None = False) -> LoglikFileSummary:
     """Write ``row,loglik,d2,n_observed`` for every row of a table file under a Gaussian.
 
     Parameters
@@ -66,7 +68,8 @@ def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: s
         CSV/TSV (maybe compressed) or Parquet file; columns not in the model
         are ignored.
     output_path : str or PathLike
-        The CSV written, atomically (a temporary sibling renamed into place);
+        The table written, in the format of its name (``.csv``, ``.tsv``,
+        ``.csv.gz``, ``.tsv.gz``, ``.parquet``), atomically (a temporary sibling renamed into place);
         never the input file.
     columns : sequence of str, optional
         The model's variables in its order (default ``model.columns``).
@@ -79,6 +82,9 @@ def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: s
     sep, decimal : str, optional
         How the file separates fields and writes decimals (see
         :func:`whiten.io.tables.open_table`).
+    progress : bool or None
+        Progress on stderr (:func:`whiten.io.tables.progress`): ``None`` decides
+        by whether stderr is a terminal.
 
     Returns
     -------
@@ -102,7 +108,10 @@ def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: s
     >>> s.rows, s.evaluated, s.partial, s.empty
     (3, 2, 1, 1)
     """
+    import pandas as pd
+
     names = list(model.columns if columns is None else columns)
+    output_format(output_path)  # an ending whiten cannot write is refused before any work
     table = data_path if isinstance(data_path, Table) else open_table(data_path, sep=sep, decimal=decimal)
     out = check_writable(output_path, force=force)
     if same_file(out, table.path):
@@ -110,26 +119,23 @@ def loglik_file(model: Any, data_path: str | os.PathLike | Table, output_path: s
     cols = table.select(names, what="the model")
     parts = []
     total, evaluated, partial, empty, rows = 0.0, 0, 0, 0, 0
-    with atomic_open(out, "w", force=force) as fh:
-        fh.write("row,loglik,d2,n_observed\n")
-        for chunk in table.chunks(cols, chunksize=chunksize):
+    with open_output(out, force=force) as writer:
+        for chunk in table_progress(table, table.chunks(cols, chunksize=chunksize), progress, "evaluating"):
             ev = model.evaluate(chunk.to_numpy(), missing="marginalize")
             if keep_rows:
                 parts.append(ev)
-            lines = []
-            for k in range(len(ev.logpdf)):
-                nobs = int(ev.n_observed[k])
-                if nobs == 0:
-                    lines.append(f"{rows + k},,,0\n")
-                    empty += 1
-                    continue
-                ll = float(ev.logpdf[k])
-                lines.append(f"{rows + k},{ll!r},{float(ev.d2[k])!r},{nobs}\n")
-                total += ll
-                evaluated += 1
-                partial += nobs < len(names)
-            fh.write("".join(lines))
-            rows += len(ev.logpdf)
+            nobs = np.asarray(ev.n_observed, dtype=np.int64)
+            seen = nobs > 0
+            ll = np.where(seen, np.asarray(ev.logpdf, dtype=float), np.nan)
+            m = nobs.shape[0]
+            frame = pd.DataFrame({"loglik": ll, "d2": np.where(seen, np.asarray(ev.d2, dtype=float), np.nan),
+                                  "n_observed": nobs}, index=pd.RangeIndex(rows, rows + m, name="row"))
+            writer.write(frame)
+            total += float(ll[seen].sum())
+            evaluated += int(seen.sum())
+            empty += int(m - seen.sum())
+            partial += int((seen & (nobs < len(names))).sum())
+            rows += m
     evaluation = None
     if keep_rows and parts:
         from ..gaussian import RowEvaluation

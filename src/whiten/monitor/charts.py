@@ -32,7 +32,7 @@ from ..errors import InputError
 from ..io.atomic import check_writable, write_bytes
 from .digest import need_score_columns as _need
 
-__all__ = ["distance_chart", "ewma_chart", "qq_chart", "contribution_chart"]
+__all__ = ["distance_chart", "distance_figure", "ewma_chart", "qq_chart", "contribution_chart"]
 
 # a palette of our own: slate for ordinary rows, amber for the limit, crimson for alarms
 _INK = "#2f3e4e"
@@ -69,7 +69,7 @@ def _save(fig, path: str | os.PathLike, force: bool) -> Path:
 
 
 def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, title: str | None = None,
-                   force: bool = False) -> Path:
+                   force: bool = False, spans: Any = None, subtitle: str | None = None) -> Path:
     """Control chart of ``d2`` per row (log scale) with the limit and the alarms.
 
     Parameters
@@ -84,6 +84,11 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     title : str, optional
     force : bool
         Replace an existing file.
+    spans : sequence of (x0, x1), optional
+        Stretches shaded behind the points, in the units of the x axis: the
+        alarm episodes (:meth:`whiten.monitor.ScoreDigest.episodes`).
+    subtitle : str, optional
+        More words for the line under the title (e.g. which model scored).
 
     Returns
     -------
@@ -93,6 +98,13 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     ------
     InputError
         ``scores`` lacks the score columns, or the file exists without ``force``.
+
+    Notes
+    -----
+    The limit's value is written at the right end of its line. A time axis
+    writes dates, and the year, as the span needs them (matplotlib's concise
+    date format). Title, subtitle and legend sit in bands of their own above
+    the plot, so no text overlaps whatever the row count.
 
     Examples
     --------
@@ -104,8 +116,15 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     >>> png.read_bytes()[:4] == b"\\x89PNG"
     True
     """
-    _need(scores, ["d2", "limit", "alarm"])
     check_writable(path, force=force, what="chart")
+    fig = distance_figure(scores, time=time, title=title, spans=spans, subtitle=subtitle)
+    return _save(fig, path, force)
+
+
+def distance_figure(scores: Any, *, time: Any = None, title: str | None = None, spans: Any = None,
+                    subtitle: str | None = None):
+    """The figure :func:`distance_chart` writes (a matplotlib Figure on an Agg canvas), for tests and reuse."""
+    _need(scores, ["d2", "limit", "alarm"])
     n = len(scores)
     pooled = int(scores.attrs.get("rows_per_point", 1) or 1)  # a ScoreDigest trace of a long run
     if time is None and pooled > 1 and "first_row" in scores.columns:
@@ -121,13 +140,16 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     floor = np.nanmin(d2[scored & (d2 > 0)]) if np.any(scored & (d2 > 0)) else 1e-3
     shown = np.where(d2 > 0, d2, floor)
 
-    fig = _figure(9.0, 3.6)
+    fig = _figure(9.0, 3.9)
     ax = fig.add_subplot(1, 1, 1)
     _style(ax)
     ax.set_yscale("log")
     n_alarm = int(scores.attrs.get("n_alarm", alarm.sum())) if pooled > 1 else int(alarm.sum())
     n_unscored = int(scores.attrs.get("n_not_scored", (~scored).sum())) if pooled > 1 else int((~scored).sum())
     ok = scored & ~alarm
+    for k, (x0, x1) in enumerate(spans or []):
+        ax.axvspan(x0, x1, color=_ALARM, alpha=0.13, linewidth=0, zorder=0,
+                   label=f"alarm episode ({len(spans or [])})" if k == 0 else None)
     ax.plot(x[scored], shown[scored], color=_OK, linewidth=0.6, alpha=0.7, zorder=1)
     ax.scatter(x[ok], shown[ok], s=7, color=_OK, zorder=2, label="row")
     ax.step(x, lim, where="mid", color=_LIMIT, linewidth=1.4, zorder=3, label="alarm limit")
@@ -137,19 +159,69 @@ def distance_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, ti
     if (~scored).any():
         ax.plot(x[~scored], np.full((~scored).sum(), floor), linestyle="none", marker="|",
                 color=_INK, markersize=9, label=f"not scored ({n_unscored})")
+    _limit_label(ax, lim)
     alpha = scores.attrs.get("alpha")
     phase = scores.attrs.get("phase")
     sub = f"limit at alpha={alpha:g}, phase {phase!r}" if alpha is not None else ""
     if pooled > 1:
         sub = (sub + "; " if sub else "") + f"each point: the largest d2 of {pooled} consecutive rows"
-    ax.set_title(title or "Squared Mahalanobis distance per row", loc="left", fontsize=10, color=_INK)
-    if sub:
-        ax.text(1.0, 1.02, sub, transform=ax.transAxes, ha="right", fontsize=8, color=_INK)
+    if subtitle:
+        sub = (sub + "; " if sub else "") + subtitle
+    _time_ticks(ax, x)
     ax.set_xlabel("row" if time is None else "time", fontsize=9, color=_INK)
     ax.set_ylabel("d2 (log scale)", fontsize=9, color=_INK)
-    ax.legend(fontsize=7, frameon=False, loc="upper left", ncol=4)
-    fig.tight_layout()
-    return _save(fig, path, force)
+    _heading(fig, ax, title or "Squared Mahalanobis distance per row", sub)
+    return fig
+
+
+def _limit_label(ax, lim: np.ndarray) -> None:
+    """The limit's value written at the right end of its line (a range when rows have different limits)."""
+    good = lim[np.isfinite(lim)]
+    if not good.size:
+        return
+    lo, hi = float(good.min()), float(good.max())
+    text = f"limit {hi:.4g}" if hi - lo <= 1e-9 * abs(hi) else f"limit {lo:.4g} to {hi:.4g}"
+    import matplotlib.transforms as mtrans
+
+    ax.annotate(text, xy=(1.0, float(good[-1])), xycoords=mtrans.blended_transform_factory(ax.transAxes, ax.transData),
+                xytext=(4, 0), textcoords="offset points", va="center", ha="left", fontsize=8, color=_LIMIT)
+
+
+def _time_ticks(ax, x: np.ndarray) -> None:
+    """Dates on a time axis, with the year (and the day) written when the span needs them."""
+    if np.asarray(x).dtype.kind != "M":
+        return
+    import matplotlib.dates as mdates
+
+    loc = mdates.AutoDateLocator(minticks=3, maxticks=8)
+    ax.xaxis.set_major_locator(loc)
+    fmt = mdates.ConciseDateFormatter(loc, show_offset=True)
+    ax.xaxis.set_major_formatter(fmt)
+    ax.xaxis.get_offset_text().set_fontsize(8)
+
+
+def _heading(fig, ax, title: str, sub: str) -> None:
+    """Title, subtitle and legend stacked above the plot in bands of their own, so no text overlaps.
+
+    The subtitle is wrapped to the figure's width; the figure grows by one
+    band per extra line, and the plot keeps its height.
+    """
+    import textwrap
+
+    lines = textwrap.wrap(sub, width=130) if sub else []
+    handles, labels = ax.get_legend_handles_labels()
+    w, h = fig.get_size_inches()
+    band = 0.19  # inches per line of 8-point text
+    top_in = 0.3 + band * len(lines) + (0.3 if handles else 0.0) + 0.1
+    fig.set_size_inches(w, h + band * max(0, len(lines) - 1))
+    h = fig.get_size_inches()[1]
+    fig.text(0.01, 1.0 - 0.08 / h, title, ha="left", va="top", fontsize=10, color=_INK)
+    for k, line in enumerate(lines):
+        fig.text(0.01, 1.0 - (0.36 + band * k) / h, line, ha="left", va="top", fontsize=8, color=_INK)
+    fig.subplots_adjust(left=0.08, right=0.86, bottom=0.6 / h, top=1.0 - top_in / h)
+    if handles:
+        ax.legend(handles, labels, fontsize=7, frameon=False, loc="lower left", bbox_to_anchor=(0.0, 1.0),
+                  ncol=min(len(handles), 5), borderaxespad=0.2)
 
 
 def ewma_chart(scores: Any, path: str | os.PathLike, *, time: Any = None, title: str | None = None,
@@ -255,8 +327,12 @@ def qq_chart(d2: Any, p: int, path: str | os.PathLike, *, title: str | None = No
 
 
 def contribution_chart(scores: Any, path: str | os.PathLike, *, rows: int = 4, labels: Any = None,
-                       title: str | None = None, force: bool = False) -> Path:
-    """Bars of the ``drop:`` terms for the ``rows`` rows with the largest d2.
+                       title: str | None = None, force: bool = False, in_order: bool = False) -> Path:
+    """Bars of the ``drop:`` terms for the ``rows`` rows with the largest d2 (``in_order``: the first ``rows``).
+
+    With ``in_order=True`` the panels are the first ``rows`` scored rows as
+    given, e.g. the peak rows of the alarm episodes
+    (:meth:`whiten.monitor.ScoreDigest.episode_peaks`), first episodes first.
 
     Each panel is one row; bar length is how much d2 falls when the sensor is
     left out; the number beside a bar is the sensor's plain standardized
@@ -277,7 +353,7 @@ def contribution_chart(scores: Any, path: str | os.PathLike, *, rows: int = 4, l
         raise InputError("scores: no row was scored (every row had all sensors missing)")
     check_writable(path, force=force, what="chart")
     k = max(1, min(int(rows), scored.size))
-    worst = scored[np.argsort(-d2[scored], kind="stable")[:k]]
+    worst = scored[:k] if in_order else scored[np.argsort(-d2[scored], kind="stable")[:k]]
     fig = _figure(4.2 * k if k < 3 else 3.4 * k, 0.42 * len(sensors) + 1.6)
     ypos = np.arange(len(sensors))[::-1]
     for n, i in enumerate(worst):

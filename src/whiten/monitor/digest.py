@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from .episodes import DEFAULT_GAP, EpisodeTracker
 
 __all__ = ["ScoreDigest"]
 
@@ -53,6 +54,9 @@ class ScoreDigest:
         Rows kept one by one for the control chart before pooling into bins
         (default 20000: more points than a chart is pixels wide, and a few
         hundred kilobytes however long the run).
+    gap : int
+        The episode gap rule (:mod:`whiten.monitor.episodes`): quiet rows
+        that may separate two runs of alarms in one episode (default 2).
 
     Examples
     --------
@@ -69,7 +73,7 @@ class ScoreDigest:
     """
 
     def __init__(self, sensors: Sequence[str], *, attrs: dict | None = None, worst: int = 5,
-                 chart_points: int = 20_000):
+                 chart_points: int = 20_000, gap: int = DEFAULT_GAP):
         if int(worst) < 1 or int(chart_points) < 1:
             raise InputError(f"worst and chart_points must be positive, got {worst} and {chart_points}")
         self.sensors = [str(s) for s in sensors]
@@ -89,16 +93,20 @@ class ScoreDigest:
         # what whiten.monitor.score_file read: the file, and its columns not in the model
         self.source: str | None = None
         self.ignored_columns: list[str] = []
+        self.notes: list[str] = []  # plain-words remarks of the run (e.g. no index column)
+        self.index_column: str | None = None  # the column that labelled the rows, if any
+        self._episodes = EpisodeTracker(self.sensors, gap=gap)
         self.drift: dict = {}  # per drift rule (ewma=, persist=): alarms and first alarm row, set by score_file
 
     # ------------------------------------------------------------------ feed
     @classmethod
-    def from_frame(cls, scores: Any, *, worst: int = 5, chart_points: int | None = None) -> ScoreDigest:
+    def from_frame(cls, scores: Any, *, worst: int = 5, chart_points: int | None = None,
+                   gap: int = DEFAULT_GAP) -> ScoreDigest:
         """The digest of an in-memory score table (every row on the chart unless ``chart_points``)."""
         need_score_columns(scores, _NEED)
         attrs = dict(scores.attrs)
         sensors = attrs.get("sensors") or [str(c)[5:] for c in scores.columns if str(c).startswith("drop:")]
-        dig = cls(sensors, attrs=attrs, worst=worst, chart_points=chart_points or max(1, len(scores)))
+        dig = cls(sensors, attrs=attrs, worst=worst, chart_points=chart_points or max(1, len(scores)), gap=gap)
         dig.add({str(c): scores[c].to_numpy() for c in scores.columns}, index=scores.index)
         dig.index_name = scores.index.name
         return dig
@@ -145,6 +153,7 @@ class ScoreDigest:
         if alarm.any() and "top_contributor" in cols:
             self.leaders.update(str(v) for v in np.asarray(cols["top_contributor"], dtype=object)[alarm])
         self._trace(d2, lim, alarm, labels)
+        self._episodes.add(cols, index=index if index is not None else pd.RangeIndex(first, first + k))
         # whole rows: this chunk's candidates (every row tied with the k-th, so the order stays exact),
         # merged with those kept so far
         if n_scored:
@@ -232,6 +241,28 @@ class ScoreDigest:
     def worst_by_d2(self):
         """The kept rows (every score column) with the largest distances."""
         return self._rows(self._by_d2)
+
+    def episodes(self):
+        """The alarm episodes so far (:mod:`whiten.monitor.episodes`): one row each, in file order."""
+        out = self._episodes.frame(index_name=self.index_name)
+        out.attrs.update({k: v for k, v in self.attrs.items() if k in ("alpha", "phase", "model")})
+        return out
+
+    def episode_peaks(self, limit: int | None = None):
+        """The peak row (every score column) of the first ``limit`` episodes, first episodes first."""
+        out = self._episodes.peak_rows(limit)
+        out.index.name = self.index_name or "row"
+        out.attrs.update(self.attrs)
+        return out
+
+    @property
+    def gap(self) -> int:
+        """The episode gap rule: quiet rows that may separate two runs of alarms in one episode."""
+        return self._episodes.gap
+
+    @property
+    def n_episodes(self) -> int:
+        return len(self._episodes)
 
 
 def _smallest(v: np.ndarray, k: int, idx: np.ndarray) -> np.ndarray:

@@ -175,6 +175,27 @@ def _health_words(rep: Report, baseline: Any, attrs: dict) -> None:
                        "factoring; the distances describe that repaired matrix.", "alert")
 
 
+_EPISODES = 20  # episodes listed in the report
+
+
+def _spans(dig: Any, time: Any) -> list[tuple]:
+    """The episodes as shaded stretches of the control chart (rows; times when the axis shows times)."""
+    if not dig.n_episodes:
+        return []
+    import numpy as np
+    import pandas as pd
+
+    ep = dig.episodes()
+    if time is not None and np.asarray(time).dtype.kind == "M":
+        try:
+            return list(zip(pd.to_datetime(ep["start"]).to_numpy(), pd.to_datetime(ep["end"]).to_numpy()))
+        except (ValueError, TypeError):
+            return []
+    if time is not None:
+        return []
+    return list(zip(ep["first_row"].to_numpy(), ep["last_row"].to_numpy() + 1))
+
+
 def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenance | None = None,
                       title: str | None = None, worst: int = 5, time: Any = None,
                       charts: bool = True) -> Report:
@@ -262,6 +283,9 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
         rep.key_figure("Largest distance", float(table["d2"].iloc[0]), digits=4, key="worst-d2",
                        note=f"row {lab}; limit {format_number(table['limit'].iloc[0], 4)}",
                        tone="alert" if bool(table["alarm"].iloc[0]) else "plain")
+    n_ep = dig.n_episodes
+    rep.key_figure("Alarm episodes", n_ep, key="episodes", tone="alert" if n_ep else "good",
+                   note=f"runs of alarms joined across gaps of up to {dig.gap} quiet rows")
     if n_partial or n_none:
         rep.key_figure("Rows not fully scored", n_partial + n_none, key="partial", tone="note",
                        note=f"{n_partial} on fewer sensors, {n_none} not at all")
@@ -272,6 +296,17 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
                    f"model of those sensors, limits with the number observed); {_rows(n_none)} with no sensor, "
                    "not scored. No row was dropped.", "note")
 
+    if n_ep:
+        ep = dig.episodes()
+        shown = ep.head(_EPISODES)[["start", "end", "rows", "alarm_rows", "peak", "peak_d2", "lead_1", "share_1",
+                                    "lead_2", "share_2"]]
+        sec = rep.section("Alarm episodes", key="episode-list")
+        sec.paragraph(f"Each episode is a run of alarming rows in file order; two runs separated by at most "
+                      f"{dig.gap} quiet rows are one episode. The leading sensors are those whose removal lowers "
+                      "the squared distance of the episode's peak row most; their share is that loss divided by "
+                      "the peak's d2." + (f" The first {_EPISODES} of {n_ep} are listed." if n_ep > _EPISODES else ""))
+        sec.table(shown, f"Alarm episodes ({n_ep})", key="episodes",
+                  formats={"peak_d2": ".5g", "share_1": ".0%", "share_2": ".0%"})
     if table is not None and len(table):
         sec = rep.section("Worst rows", key="worst")
         sec.paragraph("The rows least like the baseline, smallest p-value first. The sensors named are those "
@@ -295,7 +330,7 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
         trace = dig.trace()
         pooled = dig.rows_per_point
         with tempfile.TemporaryDirectory(prefix="whiten-report-") as tmp:
-            chart = distance_chart(trace, Path(tmp) / "d2.png", time=time)
+            chart = distance_chart(trace, Path(tmp) / "d2.png", time=time, spans=_spans(dig, time))
             above = f"{n_alarm} rows are above it" if n_alarm else "no row is above it"
             each = (f" (each point is the largest of {pooled} consecutive rows, so every alarm stays visible)"
                     if pooled > 1 else "")
