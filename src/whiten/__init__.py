@@ -5,7 +5,7 @@ modules is private.
 """
 
 from . import _engines, monitor, report
-from ._settings import get_options, options, set_options
+from ._settings import Settings, change_settings, current_settings, settings
 from ._version import __version__
 from .baseline import Baseline, BaselineHealth, fit_baseline, load_baseline
 from .errors import (
@@ -66,7 +66,7 @@ from .report import (
 # imports would break that) and its names into its area's group here
 __all__ = [
     "__version__",
-    "get_options", "options", "set_options",
+    "Settings", "settings", "change_settings", "current_settings",
     "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
     "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning",
     "Factor", "FactorHealth", "cholesky", "RankReport", "pivoted_cholesky",
