@@ -52,6 +52,7 @@ from .regression import (
     RidgeInfo,
     fit_linear,
     influence,
+    load_fit,
 )
 from .report import (
     Provenance,
@@ -73,6 +74,7 @@ __all__ = [
     "Gaussian", "RowEvaluation",
     # regression
     "fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport",
+    "load_fit",
     # likelihood and structured covariances
     "gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_grad_cov", "calibrate",
     "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval",

@@ -219,6 +219,7 @@ def _chart(fit, path: str, force: bool) -> None:
 def run(args) -> int:
     from .. import fit_linear
     from ..io.atomic import check_writable, refuse_inputs, write_text
+    from ..regression.fitfile import FIT_SCHEMA
 
     check_writable(args.output, force=args.force, what="fit")
     if args.chart:
@@ -246,7 +247,7 @@ def run(args) -> int:
         msg = msg.replace("rank_policy='nan', 'drop' or 'minimum-norm'", "--rank-policy nan, drop or minimum-norm")
         raise InputError(f"{args.data}: {msg}") from None
     text = _report(fit, args, preds)
-    doc = {"schema": "whiten.regress/3", "data": os.path.basename(args.data), "response": args.response,
+    doc = {"schema": FIT_SCHEMA, "data": os.path.basename(args.data), "response": args.response,
            "predictors": preds, "weights": args.weights, "coverage": args.coverage, "fit": fit.to_dict(args.coverage)}
     write_text(args.output, json.dumps(doc, indent=1, allow_nan=False) + "\n", force=args.force, what="fit")
     if args.chart:
