@@ -12,11 +12,13 @@ from ..errors import InputError
 from . import add_reader_options
 
 EPILOG = """\
-examples:
-  whiten regress kiln.csv --response energy_kwh -o kiln_fit.json
-  whiten regress kiln.csv --response energy_kwh --predictors tc_upper,tc_lower,fan_rpm \\
-      --weights inv_var --chart kiln_fit.png -o kiln_fit.json
-  whiten regress kiln.csv --response energy_kwh --ridge gcv --chart ridge.png -o ridge.json
+examples (the file comes with `whiten demo --out demo-output`, in demo-output/kiln_energy):
+  whiten regress kiln_energy.csv --response energy_kwh --weights meter_weight -o kiln_fit.json
+  whiten regress kiln_energy.csv --response energy_kwh \\
+      --predictors zone_c_upper,zone_c_lower,load_t,fan_rpm,ambient_c \\
+      --weights meter_weight --chart kiln_fit.png -o kiln_fit.json
+  whiten regress kiln_energy.csv --response energy_kwh --ridge gcv --standardize \\
+      --chart ridge.png -o ridge.json
 
 What you get on screen: every coefficient with its interval, a numerical-health
 block (condition number of the design with unit-length columns and as given, how
