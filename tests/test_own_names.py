@@ -108,3 +108,13 @@ def test_one_palette_everywhere():
     css = (SRC / "report" / "html.py").read_text(encoding="utf-8")
     for colour in (_palette.INK, _palette.PLAIN, _palette.ALARM, _palette.GOOD, _palette.NOTE, _palette.MUTED):
         assert colour in css  # the report's style sheet speaks the same palette
+
+
+def test_reports_carry_the_cautions_of_their_job():
+    fit, _, _ = _fit()
+    html = whiten.regression_report(fit, charts=False).to_html()
+    assert "a coefficient is an association" in html and "protective function" not in html
+    cal = whiten.calibrate(lambda th: th[0] + th[1] * np.arange(6.0), [0.0, 0.0], np.arange(6.0) + 0.01,
+                           np.eye(6))
+    html = whiten.calibration_report(cal, charts=False).to_html()
+    assert "accredited practice" in html and "protective function" not in html

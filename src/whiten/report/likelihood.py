@@ -11,6 +11,7 @@ from .. import _palette as pal
 from .._numerics import DIGITS, digits_trusted
 from .._settings import current
 from ..errors import InputError
+from .blocks import CAUTION_CALIBRATION
 from .document import Report, format_number
 from .provenance import Provenance
 
@@ -313,7 +314,8 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
     h = fit.health
     rep = Report(title or "Calibration", job="calibration",
                  lede=(f"{table.shape[0]} parameter(s) fitted to {np.size(fit.residuals)} observations by "
-                       "Gaussian least squares under the stated error covariance."), provenance=provenance)
+                       "Gaussian least squares under the stated error covariance."), provenance=provenance,
+                 cautions=[CAUTION_CALIBRATION])
     pv = float(fit.p_value)
     rep.key_figure("Chi-square", float(fit.chi2), digits=6, key="chi2", note=f"on {fit.dof} degrees of freedom")
     rep.key_figure("Goodness-of-fit p-value", pv, digits=3, key="p-value",

@@ -10,6 +10,7 @@ import numpy as np
 from .. import _palette as pal
 from .._settings import current
 from ..errors import InputError
+from .blocks import CAUTION_REGRESSION
 from .document import Report, format_number
 from .provenance import Provenance
 
@@ -233,7 +234,7 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
     n_pred = len(getattr(fit, "columns", ())) or len(fit.names)
     rep = Report(title or f"Regression of {what}", job="regression",
                  lede=f"{what} explained by {n_pred} predictor(s) over {fit.n_rows} rows, by {kind}.",
-                 provenance=provenance)
+                 provenance=provenance, cautions=[CAUTION_REGRESSION])
     trusted = float(h.digits_trusted)
     tone = "alert" if _EPS_DIGITS - trusted > current().digits_warn else ("note" if trusted < 8 else "good")
     rep.key_figure("Rows", int(fit.n_rows), key="rows")
