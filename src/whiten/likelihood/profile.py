@@ -20,7 +20,7 @@ def profile_interval(fit: CalibrationFit, param: int | str, *, coverage: float =
     The interval holds the values v for which, re-fitting every other
     parameter with this one fixed at v, the chi-square rises by at most
     ``chi2.ppf(coverage, 1)`` (times the reduced chi-square when the fit was
-    ``rescale``d) above its minimum (Venzon & Moolgavkar, 1988).
+    calibrated with ``rescale=True``) above its minimum (Venzon & Moolgavkar, 1988).
 
     Parameters
     ----------
