@@ -114,6 +114,7 @@ def run(out: Path, *, force: bool = False) -> list[str]:
     up, lo = tab.loc["zone_c_upper"], tab.loc["zone_c_lower"]
     both = float(up["coef"] + lo["coef"])
     vif_max = float(np.nanmax(fit.vif))
+    assert ridge.ridge is not None  # a ridge fit always carries how its penalty was chosen
     r_up = ridge.coef[ridge.names.index("zone_c_upper")]
     r_lo = ridge.coef[ridge.names.index("zone_c_lower")]
     lines = [
