@@ -35,7 +35,7 @@ def run(quick: bool = False) -> list[dict]:
 
     def ours():
         f = whiten.fit_linear(x, y)
-        return f.coef, f.stderr
+        return f.coef, f.std_error
 
     def peer_sm():
         r = sm.OLS(y, a).fit()

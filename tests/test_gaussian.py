@@ -152,7 +152,7 @@ def test_nonfinite_rows_are_found_by_the_blocked_pass():
     g = whiten.Gaussian([0.0, 0.0, 0.0], np.eye(3), columns=["a", "b", "c"])
     x = np.zeros((12, 3))
     x[9, 2] = -np.inf
-    with whiten.options(block_rows=4):
+    with whiten.settings(block_rows=4):
         with pytest.raises(InputError, match=r"row 9, column 'c' is -inf"):
             g.logpdf(x)
     x[9, 2] = 0.0

@@ -28,7 +28,7 @@ MAX_LINES = 500
 #: bottom to top; a module belongs to the first entry that is a prefix of its name
 LAYERS: list[tuple[str, ...]] = [
     ("whiten.errors", "whiten._numerics", "whiten._warn", "whiten._settings", "whiten._records",
-     "whiten._version", "whiten._engines"),
+     "whiten._palette", "whiten._version", "whiten._engines"),
     ("whiten._validate", "whiten.io.atomic", "whiten.io.modelfile"),
     ("whiten.linalg",),
     ("whiten.gaussian", "whiten.estimate", "whiten.io"),

@@ -10,7 +10,7 @@ import importlib
 from typing import TYPE_CHECKING, Any
 
 from . import _engines
-from ._settings import get_options, options, set_options
+from ._settings import Settings, change_settings, current_settings, settings
 from ._version import __version__
 from .errors import (
     ConditioningWarning,
@@ -28,7 +28,7 @@ from .errors import (
 
 if TYPE_CHECKING:  # type checkers and readers see every re-export; at run time each loads on first use
     from . import _engines, monitor, report
-    from ._settings import get_options, options, set_options
+    from ._settings import Settings, change_settings, current_settings, settings
     from ._version import __version__
     from .baseline import Baseline, BaselineHealth, fit_baseline, load_baseline
     from .errors import (
@@ -74,6 +74,7 @@ if TYPE_CHECKING:  # type checkers and readers see every re-export; at run time 
         RidgeInfo,
         fit_linear,
         influence,
+        load_fit,
     )
     from .report import (
         Provenance,
@@ -124,6 +125,7 @@ _LAZY: dict[str, tuple[str, str | None]] = {
     'kronecker': ('.linalg.structured', 'kronecker'),
     'likelihood_report': ('.report', 'likelihood_report'),
     'load_baseline': ('.baseline', 'load_baseline'),
+    'load_fit': ('.regression', 'load_fit'),
     'loglik_grad_cov': ('.likelihood', 'loglik_grad_cov'),
     'loglik_grad_mean': ('.likelihood', 'loglik_grad_mean'),
     'low_rank_plus_diagonal': ('.linalg.structured', 'low_rank_plus_diagonal'),
@@ -139,7 +141,7 @@ _LAZY: dict[str, tuple[str, str | None]] = {
 # imports would break that) and its names into its area's group here
 __all__ = [
     "__version__",
-    "get_options", "options", "set_options",
+    "Settings", "settings", "change_settings", "current_settings",
     "WhitenError", "InputError", "NotPositiveDefiniteError", "ModelFileError",
     "NumericalWarning", "JitterWarning", "ConditioningWarning", "RankDeficiencyWarning", "WeakScreenWarning",
     "IntegerPrecisionWarning", "LimitAccuracyWarning",
@@ -147,6 +149,7 @@ __all__ = [
     "Gaussian", "RowEvaluation",
     # regression
     "fit_linear", "LinearFit", "FitHealth", "RidgeInfo", "CollinearityReport", "influence", "InfluenceReport",
+    "load_fit",
     # likelihood and structured covariances
     "gaussian_loglik", "LikelihoodSummary", "loglik_grad_mean", "loglik_grad_cov", "calibrate",
     "CalibrationFit", "JacobianHealth", "profile_interval", "ProfileInterval",

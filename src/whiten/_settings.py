@@ -4,10 +4,10 @@ Every threshold the library applies on the user's behalf lives here, so it
 can be read, documented and changed in one spot::
 
     import whiten
-    with whiten.options(jitter_ceiling=1e-6):
+    with whiten.settings(jitter_ceiling=1e-6):
         f = whiten.cholesky(a)
 
-``whiten.get_options()`` returns the current values.
+``whiten.current_settings()`` returns the current values.
 """
 
 from __future__ import annotations
@@ -18,11 +18,11 @@ from collections.abc import Iterator
 
 from .errors import InputError
 
-__all__ = ["Options", "get_options", "set_options", "options"]
+__all__ = ["Settings", "current_settings", "change_settings", "settings"]
 
 
 @dataclasses.dataclass
-class Options:
+class Settings:
     """Numerical defaults.
 
     Attributes
@@ -78,15 +78,15 @@ class Options:
             raise InputError(f"block_rows must be a positive integer, got {self.block_rows}")
 
 
-_current = Options()
+_current = Settings()
 
 
-def get_options() -> Options:
+def current_settings() -> Settings:
     """Return the current numerical defaults (a copy)."""
     return dataclasses.replace(_current)
 
 
-def set_options(**values) -> None:
+def change_settings(**values) -> None:
     """Change numerical defaults for the rest of the process.
 
     Raises
@@ -95,27 +95,27 @@ def set_options(**values) -> None:
         On an unknown name or an invalid value.
     """
     global _current
-    known = {f.name for f in dataclasses.fields(Options)}
+    known = {f.name for f in dataclasses.fields(Settings)}
     unknown = sorted(set(values) - known)
     if unknown:
-        raise InputError(f"unknown option(s) {unknown}; choose from {sorted(known)}")
+        raise InputError(f"unknown setting(s) {unknown}; choose from {sorted(known)}")
     new = dataclasses.replace(_current, **values)
     new.validate()
     _current = new
 
 
 @contextlib.contextmanager
-def options(**values) -> Iterator[Options]:
+def settings(**values) -> Iterator[Settings]:
     """Context manager that changes numerical defaults inside a ``with`` block."""
     global _current
     saved = _current
-    set_options(**values)
+    change_settings(**values)
     try:
-        yield get_options()
+        yield current_settings()
     finally:
         _current = saved
 
 
-def current() -> Options:
-    """The live options object (internal; do not mutate)."""
+def current() -> Settings:
+    """The live settings object (internal; do not mutate)."""
     return _current

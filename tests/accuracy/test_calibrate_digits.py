@@ -1,4 +1,4 @@
-"""Calibration of ``JacobianHealth.digits_stderr`` of whiten.calibrate against mpmath (60 digits).
+"""Calibration of ``JacobianHealth.digits_std_error`` of whiten.calibrate against mpmath (60 digits).
 
 Reference: mpmath (Johansson et al.) at 60 significant digits, from the exact double inputs: the
 Jacobian exactly as the user's ``jac`` returns it at the fitted theta, and the error covariance as
@@ -82,17 +82,17 @@ def _rows():
     for name, model, jac, th0, y, cov in _problems():
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            fit = whiten.calibrate(model, th0, y, cov, jac=jac)
+            fit = whiten.calibrate(model, th0, y, cov, jacobian=jac)
         J = _mpm(np.asarray(jac(np.array(fit.theta)), dtype=float))
         S = _mpm(cov)
         G = J.T * (S ** -1) * J
         Gi = G ** -1
         worst = mp.mpf(0)
-        for k, se in enumerate(fit.stderr):
+        for k, se in enumerate(fit.std_error):
             ref = mp.sqrt(Gi[k, k])
             worst = max(worst, abs(mp.mpf(float(se)) - ref) / ref)
         actual = CAP if worst <= 0 else min(CAP, max(0.0, -float(mp.log10(worst))))
-        rows.append((name, fit.health.digits_stderr, actual))
+        rows.append((name, fit.health.digits_std_error, actual))
     return rows
 
 
@@ -112,5 +112,5 @@ def test_calibration_of_calibrate_stderr_digits():
 def test_no_statement_when_rescaled():
     t = np.linspace(0, 1, 10)
     fit = whiten.calibrate(lambda th: th[0] + th[1] * t, [0.0, 0.0], 1 + t + 0.01 * np.cos(7 * t), np.eye(10),
-                           jac=lambda th: np.column_stack([np.ones(10), t]), rescale=True)
-    assert math.isnan(fit.health.digits_stderr)
+                           jacobian=lambda th: np.column_stack([np.ones(10), t]), rescale=True)
+    assert math.isnan(fit.health.digits_std_error)

@@ -183,7 +183,7 @@ def _rows():
     for name, x, y, opts in _problems():
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            with whiten.options(block_rows=16):
+            with whiten.settings(block_rows=16):
                 fit = whiten.fit_linear(x, y, **opts)
         z, sens, s = _reference(x, y, {k: v for k, v in opts.items() if k not in ("method", "refine")})
         zn = max(abs(t) for t in z)

@@ -28,7 +28,7 @@ from .test_calibration import _problems
 
 EPS = 2.0 ** -52
 CAP = -math.log10(EPS)
-FIGURES = ("stderr", "tvalues", "pvalues", "conf_int", "vif", "loglik")
+FIGURES = ("std_error", "t_stat", "p_value", "interval", "vif", "loglik")
 
 
 def _mpm(a):
@@ -72,7 +72,7 @@ def _reference(x, y, opts):
     ci = [[xx[k] - q * se[k], xx[k] + q * se[k]] for k in range(p)]
     vif = [Gi[j, j] * (G[j, j] - G[j, 0] ** 2 / G[0, 0]) for j in range(1, p)]
     ll = -mp.mpf(n) / 2 * (mp.log(2 * mp.pi * rss / n) + 1) - logdet / 2
-    return {"stderr": se, "tvalues": tv, "pvalues": pv, "conf_int": [e for c in ci for e in c], "vif": vif,
+    return {"std_error": se, "t_stat": tv, "p_value": pv, "interval": [e for c in ci for e in c], "vif": vif,
             "loglik": [ll]}
 
 
@@ -95,11 +95,11 @@ def _rows():
             continue   # ridge estimates are biased: no t reference, and their derived figures make no claim
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            with whiten.options(block_rows=16):
+            with whiten.settings(block_rows=16):
                 fit = whiten.fit_linear(x, y, **opts)
         ref = _reference(x, y, {k: v for k, v in opts.items() if k not in ("method", "refine")})
-        got = {"stderr": fit.stderr, "tvalues": fit.tvalues, "pvalues": fit.pvalues,
-               "conf_int": fit.conf_int(0.95).ravel(), "vif": fit.vif, "loglik": [fit.loglik]}
+        got = {"std_error": fit.std_error, "t_stat": fit.t_stat, "p_value": fit.p_value,
+               "interval": fit.coef_interval(0.95).ravel(), "vif": fit.vif, "loglik": [fit.loglik]}
         h = fit.health
         row = [name]
         for f in FIGURES:

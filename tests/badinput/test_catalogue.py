@@ -181,8 +181,8 @@ CLI = [
      1, ["not numeric", "line 3"], []),
     ("regress-ragged", {"d.csv": "y,x\n1,2\n2,3,4\n"}, "regress d.csv --response y -o f.json",
      1, ["line 3", "3 fields"], []),
-    ("regress-level-two", {"d.csv": "y,x\n1,2\n2,3\n3,5\n"}, "regress d.csv --response y -o f.json --level 2",
-     1, ["--level"], []),
+    ("regress-coverage-two", {"d.csv": "y,x\n1,2\n2,3\n3,5\n"}, "regress d.csv --response y -o f.json --coverage 2",
+     1, ["--coverage"], []),
     ("regress-missing-response", {"d.csv": "y,x\n1,2\n"}, "regress d.csv --response z -o f.json", 1, ["'z'"], []),
     # columns at 1e+-160 / 1e+-300 are equilibrated now (tests/accuracy/test_extreme_scales.py); what stays
     # refused is a coefficient beyond the float64 range itself

@@ -104,4 +104,4 @@ def test_ill_conditioned_warns_with_numbers():
     x = np.column_stack([t, t + 1e-6 * rng.normal(size=300), rng.normal(size=300)])
     with pytest.warns(whiten.ConditioningWarning, match=r"about 1\d\.\d of ~16 significant digits"):
         b = whiten.fit_baseline(x)
-    assert b.health.method == "tsqr" and b.health.digits_lost > whiten.get_options().digits_warn
+    assert b.health.method == "tsqr" and b.health.digits_lost > whiten.current_settings().digits_warn

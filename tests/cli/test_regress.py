@@ -95,4 +95,5 @@ def test_help_has_example(capsys):
     with pytest.raises(SystemExit) as exc:
         main(["regress", "--help"])
     assert exc.value.code == 0
-    assert "whiten regress kiln.csv --response energy_kwh" in capsys.readouterr().out
+    out = capsys.readouterr().out
+    assert "whiten regress kiln_energy.csv --response energy_kwh" in out and "whiten demo" in out

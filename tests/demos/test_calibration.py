@@ -28,10 +28,10 @@ def test_demo_fit_recovers_invented_values():
 
     t, y, cov = calibration.simulate()
     fit = whiten.calibrate(lambda th: calibration.response(th, t), [20.0, 1.0, 5.0], y, cov,
-                           jac=lambda th: calibration.response_jac(th, t))
+                           jacobian=lambda th: calibration.response_jac(th, t))
     truth = np.array([calibration.TRUE[p] for p in calibration.PARAMS])
     # simulation check (common practice): the invented values lie within 4 standard errors
-    assert np.all(np.abs(fit.theta - truth) < 4 * fit.stderr)
+    assert np.all(np.abs(fit.theta - truth) < 4 * fit.std_error)
 
 
 def test_demo_jacobian_against_central_differences():

@@ -154,7 +154,7 @@ def test_ill_conditioned_takes_tsqr_and_beats_numpy_cov():
         b = whiten.fit_baseline(x)
         g = whiten.fit_baseline(x, method="gram")
     assert b.health.method == "tsqr" and b.health.passes == 2
-    assert b.health.gram_digits_lost > whiten.get_options().gram_digits_max
+    assert b.health.gram_digits_lost > whiten.current_settings().gram_digits_max
     ours = _metric_error(l_ref, lower=b.factor.lower)
     gram = _metric_error(l_ref, lower=g.factor.lower)
     peer = _metric_error(l_ref, np.cov(x, rowvar=False))  # numpy.cov, same binary64 rows

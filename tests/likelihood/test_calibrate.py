@@ -34,7 +34,7 @@ def linear_case():
 def test_linear_calibrate_against_statsmodels_gls(linear_case):
     sm = pytest.importorskip("statsmodels.api")
     x, y, s = linear_case
-    fit = whiten.calibrate(lambda th: x @ th, np.zeros(3), y, s, jac=lambda th: x, names=["offset", "gain", "tc"])
+    fit = whiten.calibrate(lambda th: x @ th, np.zeros(3), y, s, jacobian=lambda th: x, names=["offset", "gain", "tc"])
     gls = sm.GLS(y, x, sigma=s).fit()  # statsmodels GLS reference
     # condition of the whitened design L^{-1} X (numpy), not of its Gram: QR keeps kappa unsquared
     kappa = np.linalg.cond(np.linalg.solve(np.linalg.cholesky(s), x))
@@ -42,7 +42,7 @@ def test_linear_calibrate_against_statsmodels_gls(linear_case):
     np.testing.assert_allclose(fit.theta, gls.params, rtol=tol, atol=tol * np.abs(gls.params).max())
     # statsmodels scales bse by sqrt(ssr / df_resid); dividing that out leaves the
     # known-covariance standard errors
-    np.testing.assert_allclose(fit.stderr, gls.bse / np.sqrt(gls.scale), rtol=1e-8)
+    np.testing.assert_allclose(fit.std_error, gls.bse / np.sqrt(gls.scale), rtol=1e-8)
     assert fit.chi2 == pytest.approx(gls.ssr, rel=1e-9)  # GLS ssr is the whitened sum of squares
     assert fit.dof == int(gls.df_resid)
     assert fit.reduced_chi2 == pytest.approx(gls.scale, rel=1e-9)
@@ -64,7 +64,7 @@ def test_rescaled_covariance_equals_statsmodels_bse(linear_case):
     fit = whiten.calibrate(lambda th: x @ th, np.zeros(3), y, whiten.cholesky(s), rescale=True)
     gls = sm.GLS(y, x, sigma=s).fit()  # statsmodels GLS: bse already scaled by ssr/df
     # finite-difference Jacobian (central, error ~ eps^(2/3) relative): looser than analytic
-    np.testing.assert_allclose(fit.stderr, gls.bse, rtol=1e-7)
+    np.testing.assert_allclose(fit.std_error, gls.bse, rtol=1e-7)
     np.testing.assert_allclose(fit.theta_cov, gls.cov_params(), rtol=1e-7, atol=1e-16)
     assert fit.rescaled and fit.health.jacobian == "finite-difference"
 
@@ -76,12 +76,12 @@ def test_profile_interval_linear_is_wald(linear_case, rescale):
     # Wild, Nonlinear Regression, 1989, sec. 5.4; from memory). With the
     # covariance rescaled, both the threshold and se carry the reduced chi-square.
     x, y, s = linear_case
-    fit = whiten.calibrate(lambda th: x @ th, np.zeros(3), y, s, jac=lambda th: x, names=["offset", "gain", "tc"],
+    fit = whiten.calibrate(lambda th: x @ th, np.zeros(3), y, s, jacobian=lambda th: x, names=["offset", "gain", "tc"],
                            rescale=rescale)
-    iv = whiten.profile_interval(fit, "gain", level=0.9)
+    iv = whiten.profile_interval(fit, "gain", coverage=0.9)
     z = stats.norm.ppf(0.95)
-    assert iv.lower == pytest.approx(fit.theta[1] - z * fit.stderr[1], rel=1e-7)
-    assert iv.upper == pytest.approx(fit.theta[1] + z * fit.stderr[1], rel=1e-7)
+    assert iv.lower == pytest.approx(fit.theta[1] - z * fit.std_error[1], rel=1e-7)
+    assert iv.upper == pytest.approx(fit.theta[1] + z * fit.std_error[1], rel=1e-7)
     assert iv.threshold == pytest.approx(stats.chi2.ppf(0.9, 1) * (fit.reduced_chi2 if rescale else 1.0))
 
 
@@ -98,7 +98,7 @@ def test_nonlinear_calibration_recovers_truth_and_profile_ends_rise_by_threshold
     fit = whiten.calibrate(model, [1.0, 1.0], y, s, bounds=([0, 0.01], [10, 50]))
     assert fit.converged
     # simulation check: truth within 4 standard errors
-    assert np.all(np.abs(fit.theta - [1.5, 2.0]) < 4 * fit.stderr)
+    assert np.all(np.abs(fit.theta - [1.5, 2.0]) < 4 * fit.std_error)
     iv = whiten.profile_interval(fit, 1)
     assert iv.lower < fit.theta[1] < iv.upper
     # the profile chi-square at each end rises by exactly the threshold
@@ -111,15 +111,19 @@ def test_rank_deficient_names_parameters():
     t = np.linspace(0, 1, 10)
     x = np.column_stack([t, 2 * t])
     with pytest.warns(RankDeficiencyWarning, match=r"rank 1 < 2.*theta\[[01]\]"):
-        fit = whiten.calibrate(lambda th: x @ th, [0.0, 0.0], t, np.eye(10), jac=lambda th: x)
+        fit = whiten.calibrate(lambda th: x @ th, [0.0, 0.0], t, np.eye(10), jacobian=lambda th: x)
     assert fit.health.rank == 1 and len(fit.health.unidentified) == 1
-    assert np.all(np.isnan(fit.stderr))
+    assert np.all(np.isnan(fit.std_error))
 
 
 def test_calibrate_input_errors():
     t = np.linspace(0, 1, 5)
-    with pytest.raises(InputError, match=r"unknown option\(s\) \['loss'\]"):
-        whiten.calibrate(lambda th: th[0] * t, [1.0], t, np.eye(5), loss="huber")
+    with pytest.raises(TypeError, match="loss"):
+        whiten.calibrate(lambda th: th[0] * t, [1.0], t, np.eye(5), loss="huber")  # type: ignore[call-arg]
+    with pytest.raises(InputError, match=r"optimizer_settings: unknown key\(s\) \['loss'\].*scipy.optimize"):
+        whiten.calibrate(lambda th: th[0] * t, [1.0], t, np.eye(5), optimizer_settings={"loss": "huber"})
+    fit = whiten.calibrate(lambda th: th[0] * t, [0.5], 2 * t, np.eye(5), optimizer_settings={"method": "dogbox"})
+    assert fit.theta[0] == pytest.approx(2.0)
     with pytest.raises(InputError, match=r"returned shape \(4,\); expected \(5,\)"):
         whiten.calibrate(lambda th: th[0] * t[:4], [1.0], t, np.eye(5))
     with pytest.raises(InputError, match="cov is 4 x 4 but y has 5"):
@@ -131,8 +135,8 @@ def test_calibrate_input_errors():
     with pytest.raises(InputError, match="unknown parameter 'b'"):
         fit = whiten.calibrate(lambda th: th[0] * t, [1.0], t + 0.01 * np.sin(9 * t), np.eye(5), names=["a"])
         whiten.profile_interval(fit, "b")
-    with pytest.raises(InputError, match="level"):
-        whiten.profile_interval(fit, 0, level=1.5)
+    with pytest.raises(InputError, match="coverage"):
+        whiten.profile_interval(fit, 0, coverage=1.5)
 
 
 def test_structured_covariance_in_calibrate_matches_dense():
@@ -158,7 +162,7 @@ def test_ill_conditioned_jacobian_warns_with_numbers():
     t = np.linspace(0.1, 1.0, 12)
     x = np.column_stack([t, t + 1e-11 * t**2])
     with pytest.warns(ConditioningWarning, match=r"condition \d\.\d+e\+1\d, about 1\d\.\d digits lost"):
-        fit = whiten.calibrate(lambda th: x @ th, [0.0, 0.0], 2 * t, np.eye(12), jac=lambda th: x)
+        fit = whiten.calibrate(lambda th: x @ th, [0.0, 0.0], 2 * t, np.eye(12), jacobian=lambda th: x)
     # numpy's condition number of the (already white) design is the reference
     assert fit.health.cond == pytest.approx(np.linalg.cond(x), rel=1e-3)
     assert fit.health.rank == 2 and fit.health.digits_lost_2norm > 10

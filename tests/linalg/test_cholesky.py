@@ -55,7 +55,7 @@ def test_jitter_ceiling_is_respected():
     # eigenvalues about 2 and -5e-10: rounding-level negative, so jitter may repair it,
     # but only a jitter above ~5e-10 of the mean diagonal does
     a = np.array([[1.0, 1.0], [1.0, 1.0 - 1e-9]])
-    with whiten.options(jitter_ceiling=1e-12, jitter_start=1e-13):
+    with whiten.settings(jitter_ceiling=1e-12, jitter_start=1e-13):
         with pytest.raises(NotPositiveDefiniteError, match="even with jitter"):
             whiten.cholesky(a)
     with pytest.warns(JitterWarning, match="1.0e-09 of the mean diagonal"):
@@ -98,7 +98,7 @@ def test_digits_warn_threshold_is_settable():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         whiten.cholesky(a)
-    with whiten.options(digits_warn=3.0):
+    with whiten.settings(digits_warn=3.0):
         with pytest.warns(ConditioningWarning):
             whiten.cholesky(a)
 
@@ -136,8 +136,8 @@ def test_float32_input_is_promoted():
 
 
 def test_unknown_option_is_refused():
-    with pytest.raises(InputError, match="unknown option"):
-        whiten.set_options(jiter_ceiling=1.0)
+    with pytest.raises(InputError, match="unknown setting"):
+        whiten.change_settings(jiter_ceiling=1.0)
 
 
 def test_columns_are_checked_and_name_the_variable_in_messages():

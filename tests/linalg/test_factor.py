@@ -138,7 +138,7 @@ def test_blocked_path_keeps_order_and_values():
     x = rng.standard_normal((1001, 9))
     f = whiten.cholesky(a)
     ref = np.einsum("ij,ij->i", x @ np.linalg.inv(np.linalg.cholesky(a)).T, x @ np.linalg.inv(np.linalg.cholesky(a)).T)
-    with whiten.options(block_rows=7):
+    with whiten.settings(block_rows=7):
         small = f.quad(x)
         z = f.whiten(x)
     big = f.quad(x)

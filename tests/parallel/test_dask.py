@@ -165,7 +165,7 @@ def test_linear_fit_on_dask_equals_in_memory(client):
         fit = whiten.fit_linear(xd, yd, refine=refine)
         assert fit.names == ref.names
         assert _rel(fit.coef, ref.coef) < 1e-10
-        assert np.allclose(fit.stderr, ref.stderr, rtol=1e-10, atol=0)
+        assert np.allclose(fit.std_error, ref.std_error, rtol=1e-10, atol=0)
         assert fit.r_squared == pytest.approx(ref.r_squared, rel=1e-12)
         assert fit.residual_sd == pytest.approx(ref.residual_sd, rel=1e-10)
         assert np.allclose(fit.vif, ref.vif, rtol=1e-9)
@@ -197,7 +197,7 @@ def test_weighted_fit_on_dask_equals_in_memory_and_statsmodels(client):
     for weights in (wd, da.from_array(w, chunks=3000), w):
         fit = whiten.fit_linear(xd, yd, weights=weights)
         assert _rel(fit.coef, ref.coef) < 1e-10 and _rel(fit.coef, sm_fit.params) < 1e-10
-        assert np.allclose(fit.stderr, sm_fit.bse, rtol=1e-9, atol=0)
+        assert np.allclose(fit.std_error, sm_fit.bse, rtol=1e-9, atol=0)
         assert fit.r_squared == pytest.approx(sm_fit.rsquared, rel=1e-10)
         assert fit.loglik == pytest.approx(sm_fit.llf, rel=1e-12)
         assert fit.weighted == "wls"

@@ -53,21 +53,21 @@ def test_ols_matches_statsmodels_qr(seed):
     # statsmodels (method="qr") gets bse from inv(R^T R), which squares kappa (seen in its
     # source; our own errors are checked against mpmath in test_stderr_against_mpmath)
     tol2 = 10 * k ** 2 * EPS
-    np.testing.assert_allclose(fit.stderr, ref.bse, rtol=tol2)          # statsmodels OLS bse
+    np.testing.assert_allclose(fit.std_error, ref.bse, rtol=tol2)          # statsmodels OLS bse
     np.testing.assert_allclose(fit.r_squared, ref.rsquared, rtol=1e-12)  # statsmodels rsquared
     np.testing.assert_allclose(fit.adj_r_squared, ref.rsquared_adj, rtol=1e-12)
     np.testing.assert_allclose(fit.f_statistic, ref.fvalue, rtol=1e-9)  # statsmodels fvalue
     np.testing.assert_allclose([fit.loglik, fit.aic, fit.bic], [ref.llf, ref.aic, ref.bic], rtol=1e-12)
-    np.testing.assert_allclose(fit.pvalues, ref.pvalues, rtol=1e-6, atol=1e-300)
+    np.testing.assert_allclose(fit.p_value, ref.pvalues, rtol=1e-6, atol=1e-300)
     # interval ends near zero: compare relative to the interval's half-width
-    np.testing.assert_allclose(fit.conf_int(0.9), ref.conf_int(alpha=0.1), rtol=0,
-                               atol=tol2 * 2 * float(np.max(fit.stderr)))
+    np.testing.assert_allclose(fit.coef_interval(0.9), ref.conf_int(alpha=0.1), rtol=0,
+                               atol=tol2 * 2 * float(np.max(fit.std_error)))
     assert fit.dof == ref.df_resid
     # prediction intervals: statsmodels get_prediction summary_frame (mean_ci / obs_ci)
     new = x.iloc[:5] + 0.5
     pr = ref.get_prediction(sm.add_constant(new.to_numpy(), has_constant="add")).summary_frame(alpha=0.05)
-    ours_c = fit.predict(new, interval="confidence")
-    ours_p = fit.predict(new, interval="prediction")
+    ours_c = fit.predict(new, band="mean")
+    ours_p = fit.predict(new, band="new_row")
     np.testing.assert_allclose(ours_c["fitted"], pr["mean"], rtol=tol)
     np.testing.assert_allclose(ours_c["lower"], pr["mean_ci_lower"], rtol=tol2)
     np.testing.assert_allclose(ours_p["upper"], pr["obs_ci_upper"], rtol=tol2)
@@ -83,7 +83,7 @@ def test_stderr_against_mpmath():
         m = mpmath.matrix(a.tolist())
         g = (m.T * m) ** -1  # reference only, in 50 digits
         exact = np.array([float(mpmath.sqrt(g[i, i])) for i in range(a.shape[1])])
-    np.testing.assert_allclose(fit.stderr / fit.residual_sd, exact, rtol=100 * kappa(a) * EPS)
+    np.testing.assert_allclose(fit.std_error / fit.residual_sd, exact, rtol=100 * kappa(a) * EPS)
 
 
 def test_wls_and_gls_match_statsmodels():
@@ -94,7 +94,7 @@ def test_wls_and_gls_match_statsmodels():
     ref = sm.WLS(y, a, weights=w).fit()
     fit = whiten.fit_linear(x, y, weights=w)
     np.testing.assert_allclose(fit.coef, ref.params, rtol=tol)     # statsmodels WLS params
-    np.testing.assert_allclose(fit.stderr, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels WLS bse (inv(R^T R))
+    np.testing.assert_allclose(fit.std_error, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels WLS bse
     np.testing.assert_allclose(fit.r_squared, ref.rsquared, rtol=1e-12)
     np.testing.assert_allclose(fit.loglik, ref.llf, rtol=1e-12)
     # AR(1)-like error covariance of a slowly drifting sensor, invented for this test
@@ -103,7 +103,7 @@ def test_wls_and_gls_match_statsmodels():
     ref = sm.GLS(y, a, sigma=cov).fit()
     fit = whiten.fit_linear(x, y, error_cov=cov)
     np.testing.assert_allclose(fit.coef, ref.params, rtol=tol)     # statsmodels GLS params
-    np.testing.assert_allclose(fit.stderr, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels GLS bse
+    np.testing.assert_allclose(fit.std_error, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels GLS bse
     np.testing.assert_allclose(fit.r_squared, ref.rsquared, rtol=1e-12)
     np.testing.assert_allclose(fit.loglik, ref.llf, rtol=1e-12)
     assert fit.weighted == "gls"
@@ -127,12 +127,12 @@ def test_influence_matches_statsmodels():
     inf = whiten.fit_linear(x, y).influence()
     tol = 100 * kappa(a) ** 2 * EPS
     np.testing.assert_allclose(inf.leverage, ref.hat_matrix_diag, rtol=tol)            # OLSInfluence hat
-    np.testing.assert_allclose(inf.cooks_distance, ref.cooks_distance[0], rtol=tol)     # Cook's distance
-    np.testing.assert_allclose(inf.studentized_internal, ref.resid_studentized_internal, rtol=tol)
-    np.testing.assert_allclose(inf.studentized_external, ref.resid_studentized_external, rtol=tol)
-    np.testing.assert_allclose(inf.dfbetas, ref.dfbetas, rtol=tol, atol=tol)
+    np.testing.assert_allclose(inf.cook_distance, ref.cooks_distance[0], rtol=tol)     # Cook's distance
+    np.testing.assert_allclose(inf.scaled_residual, ref.resid_studentized_internal, rtol=tol)
+    np.testing.assert_allclose(inf.deleted_residual, ref.resid_studentized_external, rtol=tol)
+    np.testing.assert_allclose(inf.coef_shift, ref.dfbetas, rtol=tol, atol=tol)
     frame = inf.to_frame()
-    assert "dfbetas[temp_a]" in frame.columns and len(frame) == 50
+    assert "coef_shift:temp_a" in frame.columns and len(frame) == 50
 
 
 def test_dfbetas_equals_brute_force_refit():
@@ -145,8 +145,8 @@ def test_dfbetas_equals_brute_force_refit():
         keep = np.arange(len(y)) != i
         sub = np.linalg.lstsq(a[keep], y[keep], rcond=None)[0]   # numpy lstsq refit
         s_i = np.sqrt(np.sum((y[keep] - a[keep] @ sub) ** 2) / (len(y) - 1 - a.shape[1]))
-        se_rel = fit.stderr / fit.residual_sd
-        np.testing.assert_allclose(inf.dfbetas[i], (fit.coef - sub) / (s_i * se_rel), rtol=1e-8, atol=1e-10)
+        se_rel = fit.std_error / fit.residual_sd
+        np.testing.assert_allclose(inf.coef_shift[i], (fit.coef - sub) / (s_i * se_rel), rtol=1e-8, atol=1e-10)
 
 
 def test_blocked_path_matches_statsmodels():
@@ -157,13 +157,13 @@ def test_blocked_path_matches_statsmodels():
     y = x @ [1, -2, 0.5, 3, 1] + rng.standard_normal(n)
     a = sm.add_constant(x)
     ref = sm.OLS(y, a).fit(method="qr")
-    with whiten.options(block_rows=300):
+    with whiten.settings(block_rows=300):
         fit = whiten.fit_linear(x, y, method="blocked", refine=True)
         inf = fit.influence()
     assert fit.health.method == "blocked-cholqr2" and fit.health.refinement_steps >= 1
     tol = 100 * kappa(a) * EPS
     np.testing.assert_allclose(fit.coef, ref.params, rtol=tol)   # statsmodels OLS params
-    np.testing.assert_allclose(fit.stderr, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels OLS bse
+    np.testing.assert_allclose(fit.std_error, ref.bse, rtol=10 * kappa(a) ** 2 * EPS)  # statsmodels OLS bse
     np.testing.assert_allclose(inf.leverage, OLSInfluence(ref).hat_matrix_diag, rtol=1e3 * tol)
 
 
@@ -181,7 +181,7 @@ def test_blocked_paths_hand_over_when_ill_conditioned():
     ref = np.linalg.lstsq(a / norms, y, rcond=None)[0] / norms       # numpy lstsq
     k = kappa(a)
     # digits lost here are ~8 (componentwise sensitivity), below digits_warn: no warning is due
-    with whiten.options(block_rows=500), warnings.catch_warnings():
+    with whiten.settings(block_rows=500), warnings.catch_warnings():
         warnings.simplefilter("error", whiten.ConditioningWarning)
         quick = whiten.fit_linear(x, y, method="blocked", refine=False)
         careful = whiten.fit_linear(x, y, method="blocked", refine=True)
@@ -216,4 +216,4 @@ def test_weighted_influence_equals_leave_one_out_refits():
         cooks.append(d @ (aw.T @ aw) @ d / (3 * ref.scale))
     inf = whiten.fit_linear(x, y, weights=w).influence()
     np.testing.assert_allclose(inf.leverage, np.sum(q ** 2, axis=1), rtol=1e-12)
-    np.testing.assert_allclose(inf.cooks_distance, cooks, rtol=1e-9)
+    np.testing.assert_allclose(inf.cook_distance, cooks, rtol=1e-9)

@@ -68,7 +68,7 @@ def test_minimum_norm_duplicate_splits_evenly():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         bse = sm.OLS(y.to_numpy(), sm.add_constant(x.to_numpy())).fit().bse
-    np.testing.assert_allclose(fit.stderr, bse, rtol=1e-9)
+    np.testing.assert_allclose(fit.std_error, bse, rtol=1e-9)
     # unit-length coordinates: the answer does not depend on the predictors' units. The copy
     # recorded in other units (x1000) still takes half the effect (raw minimum norm would give it
     # nearly all: 4000/(1 + 1e6) per unit versus 4/(1 + 1e6) for the original)
@@ -124,8 +124,8 @@ def test_belsley_indices_and_proportions():
     a = sm.add_constant(x.to_numpy())
     s = np.linalg.svd(a / np.linalg.norm(a, axis=0), compute_uv=False)   # numpy SVD
     np.testing.assert_allclose(fit.collinearity.condition_indices, s[0] / s, rtol=1e-9)
-    np.testing.assert_allclose(fit.condition_number, s[0] / s[-1], rtol=1e-9)
-    np.testing.assert_allclose(fit.condition_number_raw, np.linalg.cond(a), rtol=1e-9)
+    np.testing.assert_allclose(fit.condition, s[0] / s[-1], rtol=1e-9)
+    np.testing.assert_allclose(fit.condition_raw, np.linalg.cond(a), rtol=1e-9)
     np.testing.assert_allclose(fit.collinearity.proportions.sum(axis=0), 1.0, rtol=1e-12)
     assert ("flow_in", "flow_out") in fit.collinearity.groups
     assert "nearly linearly dependent" in fit.collinearity.sentences[0]
@@ -148,14 +148,14 @@ def test_bad_inputs_are_named():
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 4], error_cov=np.eye(3))
     with pytest.raises(whiten.NotPositiveDefiniteError):
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 4], error_cov=np.diag([1.0, -1.0, 1.0, 1.0]))
-    with pytest.raises(InputError, match="interval: choose None, 'confidence' or 'prediction'"):
-        whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).predict([1.0, 2.0], interval="band")
+    with pytest.raises(InputError, match="band: choose None, 'mean' or 'new_row'"):
+        whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).predict([1.0, 2.0], band="confidence")
     with pytest.raises(InputError, match=r"does not match the model: missing columns \[.b.\]"):
         whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).predict(pd.DataFrame({"a": [1.0]}))
     with pytest.raises(InputError, match="reserves for the intercept"):
         whiten.fit_linear(pd.DataFrame({"(intercept)": [1.0, 2, 3], "b": [1.0, 0, 2]}), [1, 2, 3])
-    with pytest.raises(InputError, match="level: must be strictly between 0 and 1"):
-        whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).conf_int(95)
+    with pytest.raises(InputError, match="coverage: must be strictly between 0 and 1"):
+        whiten.fit_linear(x.fillna(0), [1, 2, 3, 5]).coef_interval(95)
 
 
 def test_inputs_not_modified_and_results_frozen():
@@ -230,7 +230,7 @@ def test_residual_arithmetic_without_wider_longdouble(monkeypatch):
     rng = np.random.default_rng(3)
     x = rng.standard_normal((4000, 3))
     y = x @ [1.0, 2.0, 3.0] + rng.standard_normal(4000)
-    with whiten.options(block_rows=512):
+    with whiten.settings(block_rows=512):
         fit = whiten.fit_linear(x, y, method="blocked", refine=True)
     assert fit.health.residual_arithmetic == "compensated" and fit.health.refinement_steps >= 1
     ref = np.linalg.lstsq(np.column_stack([np.ones(4000), x]), y, rcond=None)[0]   # numpy lstsq
@@ -265,7 +265,7 @@ def test_refinement_beats_plain_qr_on_a_hard_polynomial():
     with pytest.warns(whiten.ConditioningWarning):
         plain = whiten.fit_linear(x, y, refine=False)
     err = lambda c: float(np.max(np.abs(c - exact) / np.abs(exact)))  # noqa: E731
-    assert refined.condition_number > 1e8
+    assert refined.condition > 1e8
     assert err(refined.coef) < 1e-11
     assert err(refined.coef) < 1e-3 * err(plain.coef)
 

@@ -35,7 +35,7 @@ def test_fixed_penalty_equals_augmented_least_squares(lam):
     fit = whiten.fit_linear(x, y, ridge=lam)
     np.testing.assert_allclose(fit.coef, augmented_lstsq(x.to_numpy(), y, lam), rtol=1e-9)
     assert fit.ridge.criterion == "fixed" and fit.ridge.penalty == lam
-    assert np.isnan(fit.pvalues).all()
+    assert np.isnan(fit.p_value).all()
     # effective degrees of freedom: trace of the ridge hat matrix (Hoerl & Kennard, 1970), via numpy svd
     s = np.linalg.svd(x.to_numpy() - x.to_numpy().mean(0), compute_uv=False)
     assert fit.ridge.effective_dof == pytest.approx(1 + np.sum(s ** 2 / (s ** 2 + lam)), rel=1e-12)

@@ -92,14 +92,14 @@ def test_regression_report_numbers_equal_the_fit_and_statsmodels():
     est = np.array([float(v) for _, v in page.column("coefficients", "estimate")])
     lo = np.array([float(v) for _, v in page.column("coefficients", "from")])
     hi = np.array([float(v) for _, v in page.column("coefficients", "to")])
-    ci = fit.conf_int(0.95)
+    ci = fit.coef_interval(0.95)
     assert np.array_equal(est, fit.coef) and np.array_equal(lo, ci[:, 0]) and np.array_equal(hi, ci[:, 1])
     # outside reference: statsmodels OLS (QR-based pinv route); agreement to c * kappa * eps in the
     # coefficients, with kappa the scaled condition number the report itself shows
     X = sm.add_constant(df[["melt_temp", "screw_rpm", "melt_temp_b"]])
     ref = sm.OLS(df["die_pressure"], X).fit()
     kappa = float(page.tiles["condition"]["value"])
-    assert kappa == fit.health.condition_number
+    assert kappa == fit.health.condition
     scale = np.abs(ref.params.to_numpy()) + np.abs(ref.bse.to_numpy())
     assert np.all(np.abs(est - ref.params.to_numpy()) <= 100 * kappa * _EPS * scale)
     ci_ref = ref.conf_int(0.05).to_numpy()
@@ -192,9 +192,9 @@ def test_calibration_report_matches_the_fit_and_statsmodels_gls():
     est = np.array([float(v) for _, v in page.column("parameters", "estimate")])
     se = np.array([float(v) for _, v in page.column("parameters", "std error")])
     lo = np.array([float(v) for _, v in page.column("parameters", "from")])
-    assert np.array_equal(est, fit.theta) and np.array_equal(se, fit.stderr)
+    assert np.array_equal(est, fit.theta) and np.array_equal(se, fit.std_error)
     # intervals with the normal quantile for a stated covariance (scipy.stats reference)
-    assert np.allclose(lo, fit.theta - stats.norm.ppf(0.975) * fit.stderr, rtol=1e-15, atol=0)
+    assert np.allclose(lo, fit.theta - stats.norm.ppf(0.975) * fit.std_error, rtol=1e-15, atol=0)
     # outside reference: statsmodels GLS with the same sigma; unscaled parameter covariance
     ref = sm.GLS(y, sm.add_constant(masses), sigma=cov).fit()
     assert np.allclose(est, ref.params, rtol=1e-8, atol=1e-10)
@@ -204,8 +204,8 @@ def test_calibration_report_matches_the_fit_and_statsmodels_gls():
     assert page.tiles["converged"]["text"] == "yes"
     with pytest.raises(InputError, match="whiten.calibrate"):
         calibration_report(object())
-    with pytest.raises(InputError, match="level"):
-        calibration_report(fit, level=1.5)
+    with pytest.raises(InputError, match="coverage"):
+        calibration_report(fit, coverage=1.5)
 
 
 # ---------------------------------------------------------------------------- --report on the commands
@@ -224,9 +224,9 @@ def test_regress_report_equals_its_json(tmp_path, capsys):
     assert page.external == []
     est = [float(v) for _, v in page.column("coefficients", "estimate")]
     assert est == fit["coef"]
-    assert [float(v) for _, v in page.column("coefficients", "from")] == [r[0] for r in fit["conf_int_95"]]
+    assert [float(v) for _, v in page.column("coefficients", "from")] == fit["coef_interval"]["lower"]
     assert float(page.tiles["r-squared"]["value"]) == fit["r_squared"]
-    assert int(page.tiles["rows"]["value"]) == fit["nobs"]
+    assert int(page.tiles["rows"]["value"]) == fit["n_rows"]
     assert float(page.tiles["digits"]["value"]) == fit["health"]["digits_trusted"]
     files = page.tables["files"]
     assert files["rows"][0][3][0] == _digest(data)                       # hashlib reference

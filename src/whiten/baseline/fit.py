@@ -130,7 +130,7 @@ def fit_baseline(data: Any, *, estimator: str = "sample", columns: Sequence[str]
     a pilot shift (the first block's mean) with exact pairwise merges (Chan,
     Golub & LeVeque, 1979): ``N p^2`` flops in BLAS-3 ``dsyrk`` calls and
     memory for one block. When the Gram factor loses more than
-    ``whiten.get_options().gram_digits_max`` digits (default 6), the factor is
+    ``whiten.current_settings().gram_digits_max`` digits (default 6), the factor is
     recomputed by a second pass from a tall-skinny QR of the centred data
     (``2 N p^2`` flops), whose error grows with cond(X) rather than
     cond(X)^2; ``health.method`` says which route ran. A one-shot iterator

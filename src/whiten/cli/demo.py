@@ -14,6 +14,7 @@ SCENARIOS = {
     "cooling": "cooling",          # monitoring a cooling-water loop
     "calibration": "calibration",  # calibrating a temperature probe
     "kiln": "basic",               # the factor core on three thermocouples
+    "kiln_energy": "kiln_energy",  # regression on near-collinear kiln columns
 }
 
 EPILOG = """\

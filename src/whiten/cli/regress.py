@@ -12,11 +12,13 @@ from ..errors import InputError
 from . import add_reader_options
 
 EPILOG = """\
-examples:
-  whiten regress kiln.csv --response energy_kwh -o kiln_fit.json
-  whiten regress kiln.csv --response energy_kwh --predictors tc_upper,tc_lower,fan_rpm \\
-      --weights inv_var --chart kiln_fit.png -o kiln_fit.json
-  whiten regress kiln.csv --response energy_kwh --ridge gcv --chart ridge.png -o ridge.json
+examples (the file comes with `whiten demo --out demo-output`, in demo-output/kiln_energy):
+  whiten regress kiln_energy.csv --response energy_kwh --weights meter_weight -o kiln_fit.json
+  whiten regress kiln_energy.csv --response energy_kwh \\
+      --predictors zone_c_upper,zone_c_lower,load_t,fan_rpm,ambient_c \\
+      --weights meter_weight --chart kiln_fit.png -o kiln_fit.json
+  whiten regress kiln_energy.csv --response energy_kwh --ridge gcv --standardize \\
+      --chart ridge.png -o ridge.json
 
 What you get on screen: every coefficient with its interval, a numerical-health
 block (condition number of the design with unit-length columns and as given, how
@@ -24,7 +26,7 @@ many digits of the coefficients can be trusted, how the solve was refined) and
 the collinearity findings in plain words (which columns are nearly or exactly
 dependent, and on what). FIT.json holds all of it plus VIFs, condition indices
 and variance-decomposition proportions. With --chart: residuals against fitted
-values and leverage against studentized residuals; for ridge, the coefficient
+values and leverage against deleted (externally studentized) residuals; for ridge, the coefficient
 paths and the criterion curve over the penalty grid.
 
 Rules: every row of DATA is used (a missing or non-numeric cell in a used column
@@ -55,7 +57,7 @@ def add_parser(sub) -> None:
     p.add_argument("--no-intercept", action="store_true", help="fit without a constant term")
     p.add_argument("--rank-policy", choices=["nan", "drop", "raise", "minimum-norm"], default="nan",
                    help="what to do with exactly dependent columns (default: nan = set aside, reported as NaN)")
-    p.add_argument("--level", type=float, default=0.95, help="interval level (default 0.95)")
+    p.add_argument("--coverage", type=float, default=0.95, help="interval coverage (default 0.95)")
     p.add_argument("-o", "--output", required=True, metavar="FIT.json", help="where to write the fit")
     p.add_argument("--chart", metavar="FILE.png", help="write diagnostic charts (PNG)")
     p.add_argument("--force", action="store_true", help="replace output files that already exist")
@@ -110,11 +112,11 @@ def _report(fit, args, preds) -> str:
     if fit.ridge is not None:
         kind = f"ridge ({'chosen by ' + fit.ridge.criterion if fit.ridge.criterion != 'fixed' else 'fixed'} " \
                f"penalty {fit.ridge.penalty:.4g}{', standardized' if fit.ridge.standardized else ''})"
-    lines.append(f"== {args.response} explained by {len(preds)} predictor(s) over {fit.nobs} rows, {kind} ==")
+    lines.append(f"== {args.response} explained by {len(preds)} predictor(s) over {fit.n_rows} rows, {kind} ==")
     lines.append("")
-    pct = f"{100 * args.level:g}%"
+    pct = f"{100 * args.coverage:g}%"
     lines.append(f"-- coefficients, each with its {pct} interval --")
-    ci = fit.conf_int(args.level)
+    ci = fit.coef_interval(args.coverage)
     pred_pos = {n: i for i, n in enumerate(fit.columns)}
     wname = max(len(n) for n in fit.names)
     for i, name in enumerate(fit.names):
@@ -123,12 +125,12 @@ def _report(fit, args, preds) -> str:
             lines.append(f"  {name.ljust(wname)}  set aside (a combination of other columns; see collinearity below)")
             continue
         extra = []
-        if not math.isnan(fit.pvalues[i]):
-            extra.append(f"p {fit.pvalues[i]:.2g}")
+        if not math.isnan(fit.p_value[i]):
+            extra.append(f"p {fit.p_value[i]:.2g}")
         if name in pred_pos and not math.isnan(fit.vif[pred_pos[name]]):
             extra.append(f"VIF {_fmt(float(fit.vif[pred_pos[name]]))}")
         lines.append(f"  {name.ljust(wname)}  {_fmt(float(est), 13)}   from {_fmt(float(ci[i, 0]))} to "
-                     f"{_fmt(float(ci[i, 1]))}   (sd {_fmt(float(fit.stderr[i]))}"
+                     f"{_fmt(float(ci[i, 1]))}   (std error {_fmt(float(fit.std_error[i]))}"
                      + (", " + ", ".join(extra) if extra else "") + ")")
     lines.append("")
     lines.append("-- how well it fits --")
@@ -136,12 +138,12 @@ def _report(fit, args, preds) -> str:
     lines.append(f"  explains {100 * fit.r_squared:.4g}% {about} (adjusted {100 * fit.adj_r_squared:.4g}%); "
                  f"residual sd {_fmt(fit.residual_sd)} on {_fmt(float(fit.dof))} degrees of freedom")
     if not math.isnan(fit.f_statistic):
-        lines.append(f"  all-slopes-zero test: F = {_fmt(fit.f_statistic)}, p = {fit.f_pvalue:.2g}")
+        lines.append(f"  all-slopes-zero test: F = {_fmt(fit.f_statistic)}, p = {fit.f_p_value:.2g}")
     lines.append(f"  log-likelihood {_fmt(fit.loglik)}, AIC {_fmt(fit.aic)}, BIC {_fmt(fit.bic)}")
     lines.append("")
     lines.append("-- numerical health --")
-    lines.append(f"  condition number {h.condition_number:.3g} with unit-length columns "
-                 f"({h.condition_number_raw:.3g} as given; {h.condition_number_fitted:.3g} for the columns fitted)")
+    lines.append(f"  condition number {h.condition:.3g} with unit-length columns "
+                 f"({h.condition_raw:.3g} as given; {h.condition_fitted:.3g} for the columns fitted)")
     lines.append(f"  digits you can trust: {h.digits_solved:.1f} computed right for the data exactly as given; "
                  f"{h.digits_trusted:.1f} survive a change in the data's last digit")
     ref = (f"{h.refinement_steps} refinement step(s) with {h.residual_arithmetic} residuals, "
@@ -167,44 +169,45 @@ def _chart(fit, path: str, force: bool) -> None:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
+    from .. import _palette as pal
     from ..io.atomic import write_bytes
 
     panels = 2 + (2 if fit.ridge is not None and fit.ridge.grid is not None else 0)
     fig, axes = plt.subplots(1, panels, figsize=(4.2 * panels, 3.8))
     ax = axes[0]
-    ax.scatter(fit.fitted, fit.residuals, s=10, color="#33658a")
-    ax.axhline(0.0, color="0.4", lw=0.8)
+    ax.scatter(fit.fitted, fit.residuals, s=10, color=pal.PLAIN)
+    ax.axhline(0.0, color=pal.MUTED, lw=0.8)
     ax.set_xlabel("fitted value")
     ax.set_ylabel("residual")
     ax.set_title("residuals against fitted")
     ax = axes[1]
     if fit.influence_available:
         inf = fit.influence()
-        ax.scatter(inf.leverage, inf.studentized_external, s=10, color="#86bbd8")
+        ax.scatter(inf.leverage, inf.deleted_residual, s=10, color=pal.PLAIN)
         p = fit.rank  # the columns fitted: for a fit with influence measures, rank == their number
-        ax.axvline(2 * p / fit.nobs, color="#f26419", lw=0.8, ls="--", label="2p/n")
-        ax.axhline(0.0, color="0.4", lw=0.8)
+        ax.axvline(2 * p / fit.n_rows, color=pal.ACCENT, lw=0.8, ls="--", label="2p/n")
+        ax.axhline(0.0, color=pal.MUTED, lw=0.8)
         ax.set_xlabel("leverage")
-        ax.set_ylabel("studentized residual (external)")
-        ax.set_title("leverage against studentized residual")
+        ax.set_ylabel("deleted residual")
+        ax.set_title("leverage against deleted residual")
         ax.legend(loc="best", fontsize=8)
     else:
-        ax.hist(fit.residuals, bins=min(30, max(5, fit.nobs // 4)), color="#86bbd8")
+        ax.hist(fit.residuals, bins=min(30, max(5, fit.n_rows // 4)), color=pal.LIGHT)
         ax.set_xlabel("residual")
         ax.set_title("residual histogram")
     if panels == 4:
         r = fit.ridge
         ax = axes[2]
         for j, nm in enumerate(fit.columns):
-            ax.plot(r.grid, r.paths[:, j], label=nm)
-        ax.axvline(r.penalty, color="0.3", ls=":", lw=1)
+            ax.plot(r.grid, r.paths[:, j], label=nm, color=pal.series(j))
+        ax.axvline(r.penalty, color=pal.ACCENT, ls=":", lw=1)
         ax.set_xscale("log")
         ax.set_xlabel("penalty")
         ax.set_title("coefficient paths")
         ax.legend(fontsize=7, loc="best")
         ax = axes[3]
-        ax.plot(r.grid, r.scores, color="#2f4858")
-        ax.axvline(r.penalty, color="#f26419", ls=":", lw=1)
+        ax.plot(r.grid, r.scores, color=pal.INK)
+        ax.axvline(r.penalty, color=pal.ACCENT, ls=":", lw=1)
         ax.set_xscale("log")
         ax.set_yscale("log")
         ax.set_xlabel("penalty")
@@ -219,6 +222,7 @@ def _chart(fit, path: str, force: bool) -> None:
 def run(args) -> int:
     from .. import fit_linear
     from ..io.atomic import check_writable, refuse_inputs, write_text
+    from ..regression.fitfile import FIT_SCHEMA
 
     check_writable(args.output, force=args.force, what="fit")
     if args.chart:
@@ -229,8 +233,8 @@ def run(args) -> int:
         check_writable(args.report, force=args.force, what="report")
     refuse_inputs({"-o": args.output, "--chart": args.chart, "--report": getattr(args, "report", None)},
                   {"data": args.data})
-    if not 0 < args.level < 1:
-        raise InputError(f"--level: must be strictly between 0 and 1 (e.g. 0.95), got {args.level}")
+    if not 0 < args.coverage < 1:
+        raise InputError(f"--coverage: must be strictly between 0 and 1 (e.g. 0.95), got {args.coverage}")
     preds, df = _select(_read_table(args.data, args), args)
     x = df[preds]
     y = df[args.response]
@@ -246,15 +250,15 @@ def run(args) -> int:
         msg = msg.replace("rank_policy='nan', 'drop' or 'minimum-norm'", "--rank-policy nan, drop or minimum-norm")
         raise InputError(f"{args.data}: {msg}") from None
     text = _report(fit, args, preds)
-    doc = {"schema": "whiten.regress/2", "data": os.path.basename(args.data), "response": args.response,
-           "predictors": preds, "weights": args.weights, "level": args.level, "fit": fit.to_dict()}
+    doc = {"schema": FIT_SCHEMA, "data": os.path.basename(args.data), "response": args.response,
+           "predictors": preds, "weights": args.weights, "coverage": args.coverage, "fit": fit.to_dict(args.coverage)}
     write_text(args.output, json.dumps(doc, indent=1, allow_nan=False) + "\n", force=args.force, what="fit")
     if args.chart:
         _chart(fit, args.chart, args.force)
     if getattr(args, "report", None):  # --report: one self-contained HTML file (whiten.report)
         from ..report import cli_provenance, regression_report
 
-        regression_report(fit, response=args.response, level=args.level,
+        regression_report(fit, response=args.response, coverage=args.coverage,
                           provenance=cli_provenance(args, inputs=[args.data])).write(args.report, force=args.force)
     print(text, end="")
     print(f"fit written to {args.output}" + (f", charts to {args.chart}" if args.chart else "")

@@ -83,14 +83,14 @@ def _png(fig) -> bytes:
     return buf.getvalue()
 
 
-def _ellipse(center: np.ndarray, cov2: np.ndarray, level: float = 0.95) -> np.ndarray:
+def _ellipse(center: np.ndarray, cov2: np.ndarray, coverage: float = 0.95) -> np.ndarray:
     """Points of the joint confidence ellipse: center + r L [cos; sin], L the Cholesky factor of cov2."""
     from scipy import stats
 
     import whiten
 
     lower = whiten.cholesky(cov2).lower
-    r = math.sqrt(stats.chi2.ppf(level, 2))
+    r = math.sqrt(stats.chi2.ppf(coverage, 2))
     a = np.linspace(0.0, 2.0 * math.pi, 200)
     return center[:, None] + r * lower @ np.vstack([np.cos(a), np.sin(a)])
 
@@ -99,15 +99,16 @@ def _charts(out: Path, t, y, fit, naive, force: bool) -> list[str]:
     from matplotlib.figure import Figure
 
     import whiten
+    from whiten import _palette as pal
     from whiten.io.atomic import write_bytes
 
     files = []
     fig = Figure(figsize=(7.5, 4.2))
     ax = fig.add_subplot()
-    ax.plot(t, y, ".", ms=3, color="0.35", label="probe reading")
+    ax.plot(t, y, ".", ms=3, color=pal.MUTED, label="probe reading")
     tt = np.linspace(t[0], t[-1], 400)
-    ax.plot(tt, response(fit.theta, tt), color="C0", lw=1.6, label="fitted first-order response")
-    ax.axvline(fit.theta[2], color="C1", lw=0.8, ls="--", label=f"tau = {fit.theta[2]:.2f} s")
+    ax.plot(tt, response(fit.theta, tt), color=pal.PLAIN, lw=1.6, label="fitted first-order response")
+    ax.axvline(fit.theta[2], color=pal.ACCENT, lw=0.8, ls="--", label=f"tau = {fit.theta[2]:.2f} s")
     ax.set_xlabel("time since plunge (s)")
     ax.set_ylabel("reading (°C)")
     ax.set_title("Step response of the probe and the calibrated model")
@@ -117,15 +118,15 @@ def _charts(out: Path, t, y, fit, naive, force: bool) -> list[str]:
 
     fig = Figure(figsize=(7.5, 4.6))
     ax1, ax2 = fig.subplots(2, 1, sharex=True)
-    ax1.plot(t, fit.residuals * 1000, color="0.3", lw=0.9)
-    ax1.axhline(0, color="k", lw=0.6)
+    ax1.plot(t, fit.residuals * 1000, color=pal.MUTED, lw=0.9)
+    ax1.axhline(0, color=pal.INK, lw=0.6)
     ax1.set_ylabel("residual (mK)")
     ax1.set_title("Residuals: raw (correlated) and whitened (should look like independent noise)")
     z = whiten.cholesky(noise_covariance(t.size)).whiten(fit.residuals)
-    ax2.plot(t, z, color="C0", lw=0.9)
-    ax2.axhline(0, color="k", lw=0.6)
+    ax2.plot(t, z, color=pal.PLAIN, lw=0.9)
+    ax2.axhline(0, color=pal.INK, lw=0.6)
     for s in (-2, 2):
-        ax2.axhline(s, color="C3", lw=0.6, ls=":")
+        ax2.axhline(s, color=pal.ACCENT, lw=0.6, ls=":")
     ax2.set_ylabel("whitened residual")
     ax2.set_xlabel("time since plunge (s)")
     write_bytes(out / "calibration_residuals.png", _png(fig), force=force)
@@ -133,12 +134,12 @@ def _charts(out: Path, t, y, fit, naive, force: bool) -> list[str]:
 
     fig = Figure(figsize=(5.8, 5.0))
     ax = fig.add_subplot()
-    for f, label, color in ((fit, "AR(1) noise covariance (stated)", "C0"),
-                            (naive, "if the noise were taken as independent", "C3")):
+    for f, label, color in ((fit, "AR(1) noise covariance (stated)", pal.PLAIN),
+                            (naive, "if the noise were taken as independent", pal.ALARM)):
         pts = _ellipse(f.theta[1:], f.theta_cov[1:, 1:])
         ax.plot(pts[0], pts[1], color=color, lw=1.4, label=label)
         ax.plot(*f.theta[1:], "o", color=color, ms=4)
-    ax.plot(TRUE["gain"], TRUE["tau"], "k+", ms=10, label="value used to invent the data")
+    ax.plot(TRUE["gain"], TRUE["tau"], "+", color=pal.INK, ms=10, label="value used to invent the data")
     ax.set_xlabel("gain")
     ax.set_ylabel("time constant tau (s)")
     ax.set_title("95% joint confidence region for gain and tau")
@@ -167,21 +168,27 @@ def run(out: Path, *, force: bool = False) -> list[str]:
     write_text(out / "probe_step.csv", buf.getvalue(), force=force)
 
     factor = whiten.cholesky(cov)  # factored once, reused by every evaluation
-    opts = dict(jac=lambda th: response_jac(th, t), names=PARAMS, bounds=([-np.inf, 0.1, 0.05], [np.inf, 2.0, 120.0]))
+    bounds = ([-np.inf, 0.1, 0.05], [np.inf, 2.0, 120.0])
     start = [y[0], (y[-1] - y[0]) / STEP_K, 5.0]
-    fit = whiten.calibrate(lambda th: response(th, t), start, y, factor, **opts)
-    naive = whiten.calibrate(lambda th: response(th, t), start, y, whiten.diagonal(np.diag(cov)), **opts)
-    tau_iv = whiten.profile_interval(fit, "tau", level=0.95)
+
+    def jacobian(th):
+        return response_jac(th, t)
+
+    fit = whiten.calibrate(lambda th: response(th, t), start, y, factor, names=PARAMS, jacobian=jacobian,
+                           bounds=bounds)
+    naive = whiten.calibrate(lambda th: response(th, t), start, y, whiten.diagonal(np.diag(cov)), names=PARAMS,
+                             jacobian=jacobian, bounds=bounds)
+    tau_iv = whiten.profile_interval(fit, "tau", coverage=0.95)
     files = _charts(out, t, y, fit, naive, force)
 
     g, tau = fit.theta[1], fit.theta[2]
-    sg, stau = fit.stderr[1], fit.stderr[2]
+    sg, stau = fit.std_error[1], fit.std_error[2]
     corr = fit.theta_cov[1, 2] / (sg * stau)
     lines = [
         f"A probe plunged into a bath {STEP_K:.0f} K warmer was logged every {DT_S} s for {DURATION_S:.0f} s "
         f"({t.size} readings, data in probe_step.csv).",
         f"Calibrated first-order model: gain {g:.4f} ± {sg:.2g}, time constant {tau:.3f} ± {stau:.2g} s, "
-        f"starting reading {fit.theta[0]:.3f} ± {fit.stderr[0]:.2g} °C (one standard uncertainty each, "
+        f"starting reading {fit.theta[0]:.3f} ± {fit.std_error[0]:.2g} °C (one standard uncertainty each, "
         "for the stated noise covariance).",
         f"The probe reads {100 * (1 - g):.1f}% short of the full step once settled; it reaches 63% of the step "
         f"after about {tau:.1f} s and 99% after about {tau * math.log(100):.0f} s.",
@@ -190,7 +197,7 @@ def run(out: Path, *, force: bool = False) -> list[str]:
         f"p = {fit.p_value:.2f}): the residuals are as large as the stated noise predicts.",
         f"Gain and time constant are correlated ({corr:+.2f}); calibration_ellipse.png shows their joint 95% region.",
         f"Treating the noise as independent would give the same kind of curve but claim a time-constant "
-        f"uncertainty of {naive.stderr[2]:.2g} s instead of {stau:.2g} s: correlated noise carries less "
+        f"uncertainty of {naive.std_error[2]:.2g} s instead of {stau:.2g} s: correlated noise carries less "
         "information than its sample count suggests (the red ellipse is too small).",
         f"Numerical health: the whitened Jacobian has condition {fit.health.cond:.3g} "
         f"(about {fit.health.digits_lost_2norm:.1f} of 16 digits lost); the noise covariance factor keeps about "

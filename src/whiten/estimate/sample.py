@@ -7,7 +7,7 @@ by :func:`whiten.cholesky`. This squares the condition number of the centred
 data, which is harmless while few digits are at stake.
 
 Accurate path ("tsqr"): when the Gram factor's condition estimate says more
-than ``whiten.get_options().gram_digits_max`` decimal digits are lost, the
+than ``whiten.current_settings().gram_digits_max`` decimal digits are lost, the
 factor is recomputed from a tall-skinny QR of the centred data (a Householder
 QR per row block, then QR of stacked R factors through the same exact merges).
 The R of a QR of the centred data is, up to signs, the Cholesky factor of the

@@ -24,7 +24,7 @@ from .._warn import warn
 from ..errors import ConditioningWarning, InputError, RankDeficiencyWarning
 from ..linalg.qr import pivoted_qr_r, tri_solve
 from .loglik import as_covariance
-from .problem import Problem, central_jac, check_options, predict, solve, whitened_jac
+from .problem import Problem, central_jac, check_settings, predict, solve, whitened_jac
 from .results import CalibrationFit, JacobianHealth
 
 __all__ = ["calibrate"]
@@ -33,7 +33,7 @@ __all__ = ["calibrate"]
 def _stderr_error(r: np.ndarray, jw: np.ndarray, factor: Any, perm) -> float:
     """Relative error of the computed standard errors (max over parameters) for the Jacobian as evaluated.
 
-    Same estimate as ``FitHealth.digits_stderr`` (docs/numerics.rst): the QR's backward error moves
+    Same estimate as ``FitHealth.digits_std_error`` (docs/numerics.rst): the QR's backward error moves
     ``C_kk = (R^-1 R^-T)_kk`` by about ``|dR| |C e_k|_1 / sqrt(C_kk)`` (unit columns). The factor and the
     whitening ``L^-1 J`` are exact for some ``S + dS``, and then ``C_kk`` moves like a Gaussian quadratic
     form with ``z_k = L^-T J_w C e_k`` (the estimate of ``whiten.likelihood.accuracy``, part B).
@@ -62,7 +62,10 @@ def _stderr_error(r: np.ndarray, jw: np.ndarray, factor: Any, perm) -> float:
 _LOG_2PI = math.log(2.0 * math.pi)
 
 
-def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> CalibrationFit:
+def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, *, names: Any = None,
+              jacobian: Callable | None = None, bounds: Any = None, rescale: bool = False,
+              tolerance: float = 1e-12, max_evals: int | None = None,
+              optimizer_settings: dict | None = None) -> CalibrationFit:
     """Fit ``y ≈ model(theta)`` for errors ``N(0, cov)``: Gaussian (generalized) nonlinear least squares.
 
     Parameters
@@ -76,13 +79,28 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     cov : array_like (n, n), Factor or structured covariance
         Covariance of the measurement errors (a matrix is factored once with
         :func:`whiten.cholesky`).
-    **options
-        ``jac`` (callable ``theta -> (n, K)`` Jacobian of the predictions;
-        default finite differences), ``bounds`` ((lower, upper)), ``rescale``
-        (bool, default False: multiply ``theta_cov`` by the reduced chi-square
-        when the stated uncertainties look too small), ``names`` (parameter
-        names), ``method`` ("trf", "dogbox", "lm"), ``tol`` (default 1e-12),
-        ``max_evals``, ``x_scale``.
+    names : list of str, optional
+        Parameter names (default ``theta[0]``, ``theta[1]``, ...).
+    jacobian : callable, optional
+        ``theta -> (n, K)`` Jacobian of the predictions. Default: central
+        finite differences for the reported covariance (the optimizer uses its
+        own forward differences while it searches).
+    bounds : (lower, upper), optional
+        Each a number or K numbers; ``-inf``/``inf`` leave a side open.
+    rescale : bool
+        Multiply ``theta_cov`` by the reduced chi-square (default False: the
+        stated covariance is taken at its word).
+    tolerance : float
+        Relative stopping tolerance of the search (default 1e-12; used for
+        scipy's ``ftol``, ``xtol`` and ``gtol`` alike).
+    max_evals : int, optional
+        Most model evaluations the search may spend (scipy's ``max_nfev``).
+    optimizer_settings : dict, optional
+        Handed unchanged to ``scipy.optimize.least_squares``; whiten accepts the
+        keys ``"method"`` (``"trf"``, the default, ``"dogbox"`` or ``"lm"``,
+        scipy's own codes) and ``"x_scale"`` (a number, K numbers or ``"jac"``)
+        and sets every other argument itself. See scipy's documentation for
+        what they do.
 
     Returns
     -------
@@ -91,7 +109,7 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     Raises
     ------
     InputError
-        Unknown option, shapes that disagree, a model or Jacobian that returns
+        An unknown ``optimizer_settings`` key, shapes that disagree, a model or Jacobian that returns
         the wrong shape or non-finite values, fewer observations than parameters.
     NotPositiveDefiniteError
         ``cov`` cannot be factored.
@@ -101,7 +119,7 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     RankDeficiencyWarning
         The whitened Jacobian is rank deficient (names the parameters).
     ConditioningWarning
-        Its condition number loses more than ``whiten.get_options().digits_warn`` digits.
+        Its condition number loses more than ``whiten.current_settings().digits_warn`` digits.
 
     Notes
     -----
@@ -124,7 +142,7 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     """
     from scipy import stats
 
-    opts = check_options(options)
+    opts = check_settings(jacobian, rescale, tolerance, optimizer_settings)
     if not callable(model):
         raise InputError("model: expected a callable theta -> predictions")
     th0, _, _ = as_float_array(theta0, name="theta0", ndim=(1,))
@@ -137,14 +155,14 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
         raise InputError("theta0: no parameters to calibrate")
     if n < k:
         raise InputError(f"y: {n} observations cannot determine {k} parameters")
-    names = [str(s) for s in opts["names"]] if opts["names"] is not None else [f"theta[{i}]" for i in range(k)]
+    names = [str(s) for s in names] if names is not None else [f"theta[{i}]" for i in range(k)]
     if len(names) != k:
         raise InputError(f"names: expected {k} parameter names, got {len(names)}")
     lower = np.full(k, -np.inf)
     upper = np.full(k, np.inf)
-    if opts["bounds"] is not None:
+    if bounds is not None:
         try:
-            lo, hi = opts["bounds"]
+            lo, hi = bounds
             lower = np.broadcast_to(np.asarray(lo, dtype=float), (k,)).copy()
             upper = np.broadcast_to(np.asarray(hi, dtype=float), (k,)).copy()
         except (TypeError, ValueError):
@@ -154,12 +172,12 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
             raise InputError(f"bounds: lower bound of {names[i]} ({lower[i]}) is not below its upper bound "
                              f"({upper[i]})")
         if opts["method"] == "lm":
-            raise InputError("bounds: method 'lm' does not take bounds; use 'trf' or 'dogbox'")
+            raise InputError("bounds: the optimizer method 'lm' does not take bounds; use 'trf' or 'dogbox'")
     x_scale = opts["x_scale"]
     if not isinstance(x_scale, str):
         x_scale = np.broadcast_to(np.asarray(x_scale, dtype=float), (k,)).copy()
-    prob = Problem(model, yy.copy(), factor, opts["jac"], lower, upper, opts["method"], float(opts["tol"]),
-                    opts["max_evals"], x_scale, 0.0, 1.0)
+    prob = Problem(model, yy.copy(), factor, jacobian, lower, upper, opts["method"], float(tolerance),
+                   max_evals, x_scale, 0.0, 1.0)
     predict(model, th0, n)  # fail early, with the message naming theta0
     theta, chi2, res = solve(prob, th0)
 
@@ -191,13 +209,13 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
     theta_cov[np.ix_(perm, perm)] = cperm
     dof = n - k
     red = chi2 / dof if dof > 0 else math.nan
-    rescaled = bool(opts["rescale"])
+    rescaled = bool(rescale)
     if rescaled:
         if dof <= 0:
             raise InputError("rescale: needs more observations than parameters (dof = 0)")
         theta_cov = theta_cov * red
     prob = dataclasses.replace(prob, chi2=chi2, rescale_factor=red if rescaled else 1.0)
-    stderr = np.sqrt(np.diag(theta_cov))
+    std_error = np.sqrt(np.diag(theta_cov))
     p_value = float(stats.chi2.sf(chi2, dof)) if dof > 0 else math.nan
     loglik = -0.5 * (n * _LOG_2PI + factor.logdet() + chi2)
     se_digits = math.nan   # not stated when rank deficient, nor with rescale=True (not calibrated)
@@ -205,9 +223,9 @@ def calibrate(model: Callable, theta0: Any, y: Any, cov: Any, **options) -> Cali
         se_err = _stderr_error(r, jw, factor, perm)
         se_digits = float(min(-math.log10(EPS), max(0.0, -math.log10(se_err))))
     health = JacobianHealth(cond, digits, rank, unidentified, factor.health,
-                            "analytic" if opts["jac"] is not None else "finite-difference", se_digits)
+                            "analytic" if jacobian is not None else "finite-difference", se_digits)
     residuals = yy - predict(model, theta, n)
-    for a in (theta, theta_cov, stderr, residuals):
+    for a in (theta, theta_cov, std_error, residuals):
         a.setflags(write=False)
-    return CalibrationFit(theta, theta_cov, stderr, chi2, dof, p_value, red, loglik, rescaled, names, residuals,
+    return CalibrationFit(theta, theta_cov, std_error, chi2, dof, p_value, red, loglik, rescaled, names, residuals,
                           bool(res.success), str(res.message), int(res.nfev), health, prob)

@@ -1,4 +1,4 @@
-"""The calibration problem: options, whitened residuals and Jacobians, and one optimizer run.
+"""The calibration problem: settings, whitened residuals and Jacobians, and one optimizer run.
 
 Shared by :func:`~whiten.likelihood.calibrate.calibrate` and
 :func:`~whiten.likelihood.profile.profile_interval` (which re-runs the
@@ -17,16 +17,11 @@ from .._numerics import EPS
 from ..errors import InputError
 from ..linalg.factor import Factor
 
-__all__ = ["Problem", "check_options", "predict", "white", "whitened_jac", "central_jac", "solve"]
+__all__ = ["Problem", "OPTIMIZER_KEYS", "check_settings", "predict", "white", "whitened_jac", "central_jac", "solve"]
 
-_OPTIONS = {
-    "jac": None,            # callable theta -> (n, K) Jacobian of the predictions; None: finite differences
-    "bounds": None,         # (lower, upper) arrays or scalars, as scipy.optimize.least_squares
-    "rescale": False,       # multiply theta_cov by the reduced chi-square
-    "names": None,          # parameter names
+#: the keys of ``calibrate(optimizer_settings=...)``: handed to scipy.optimize.least_squares unchanged
+OPTIMIZER_KEYS = {
     "method": "trf",        # least_squares method: "trf", "dogbox" or "lm"
-    "tol": 1e-12,           # ftol = xtol = gtol
-    "max_evals": None,      # least_squares max_nfev
     "x_scale": 1.0,         # least_squares x_scale (e.g. "jac")
 }
 
@@ -49,21 +44,25 @@ class Problem:
     rescale_factor: float
 
 
-def check_options(options: dict) -> dict:
-    """The calibrate options with defaults filled in (unknown or bad ones raise InputError)."""
-    unknown = sorted(set(options) - set(_OPTIONS))
+def check_settings(jacobian, rescale, tolerance, optimizer_settings) -> dict:
+    """The optimizer settings with defaults filled in; bad calibrate keywords raise InputError."""
+    given = {} if optimizer_settings is None else optimizer_settings
+    if not isinstance(given, dict):
+        raise InputError(f"optimizer_settings: expected a dict such as {{'method': 'dogbox'}}, got {given!r}")
+    unknown = sorted(set(given) - set(OPTIMIZER_KEYS))
     if unknown:
-        raise InputError(f"calibrate: unknown option(s) {unknown}; choose from {sorted(_OPTIONS)}")
-    opts = dict(_OPTIONS)
-    opts.update(options)
+        raise InputError(f"optimizer_settings: unknown key(s) {unknown}; whiten passes only "
+                         f"{sorted(OPTIMIZER_KEYS)} to scipy.optimize.least_squares (it sets the rest itself)")
+    opts = dict(OPTIMIZER_KEYS)
+    opts.update(given)
     if opts["method"] not in ("trf", "dogbox", "lm"):
-        raise InputError(f"method: expected 'trf', 'dogbox' or 'lm', got {opts['method']!r}")
-    if not isinstance(opts["rescale"], bool):
-        raise InputError(f"rescale: expected True or False, got {opts['rescale']!r}")
-    if not (isinstance(opts["tol"], (int, float)) and 0 < opts["tol"] < 1):
-        raise InputError(f"tol: expected a number between 0 and 1, got {opts['tol']!r}")
-    if opts["jac"] is not None and not callable(opts["jac"]):
-        raise InputError("jac: expected a callable theta -> (n, K) Jacobian of the predictions, or None")
+        raise InputError(f"optimizer_settings['method']: expected 'trf', 'dogbox' or 'lm', got {opts['method']!r}")
+    if not isinstance(rescale, bool):
+        raise InputError(f"rescale: expected True or False, got {rescale!r}")
+    if not (isinstance(tolerance, (int, float)) and 0 < tolerance < 1):
+        raise InputError(f"tolerance: expected a number between 0 and 1, got {tolerance!r}")
+    if jacobian is not None and not callable(jacobian):
+        raise InputError("jacobian: expected a callable theta -> (n, K) Jacobian of the predictions, or None")
     return opts
 
 
@@ -99,9 +98,9 @@ def whitened_jac(prob: Problem, theta: np.ndarray, n: int, k: int, fallback: np.
     if j.ndim == 1 and k == 1:
         j = j[:, None]
     if j.shape != (n, k):
-        raise InputError(f"jac(theta) returned shape {j.shape}; expected ({n}, {k})")
+        raise InputError(f"jacobian(theta) returned shape {j.shape}; expected ({n}, {k})")
     if not np.isfinite(j).all():
-        raise InputError(f"jac(theta) returned non-finite values at theta={theta.tolist()}")
+        raise InputError(f"jacobian(theta) returned non-finite values at theta={theta.tolist()}")
     # residual z = W (model - y): its Jacobian is W J, whitening J's columns
     return prob.factor.whiten(j.T).T
 

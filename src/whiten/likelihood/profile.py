@@ -13,14 +13,14 @@ from .results import CalibrationFit, ProfileInterval
 __all__ = ["profile_interval"]
 
 
-def profile_interval(fit: CalibrationFit, param: int | str, *, level: float = 0.95,
+def profile_interval(fit: CalibrationFit, param: int | str, *, coverage: float = 0.95,
                      max_steps: int = 40) -> ProfileInterval:
     """Profile-likelihood interval for one parameter of a :func:`calibrate` result.
 
     The interval holds the values v for which, re-fitting every other
     parameter with this one fixed at v, the chi-square rises by at most
-    ``chi2.ppf(level, 1)`` (times the reduced chi-square when the fit was
-    ``rescale``d) above its minimum (Venzon & Moolgavkar, 1988).
+    ``chi2.ppf(coverage, 1)`` (times the reduced chi-square when the fit was
+    calibrated with ``rescale=True``) above its minimum (Venzon & Moolgavkar, 1988).
 
     Parameters
     ----------
@@ -28,8 +28,8 @@ def profile_interval(fit: CalibrationFit, param: int | str, *, level: float = 0.
         Holds the model, data and covariance factor it was computed from.
     param : int or str
         Position or name of the parameter.
-    level : float
-        Confidence level, 0 < level < 1.
+    coverage : float
+        Coverage probability, 0 < coverage < 1.
     max_steps : int
         Doublings of the search step on each side before giving up (the end
         is then reported as infinite).
@@ -41,15 +41,15 @@ def profile_interval(fit: CalibrationFit, param: int | str, *, level: float = 0.
     Raises
     ------
     InputError
-        Unknown parameter, level outside (0, 1), or a fit without its problem.
+        Unknown parameter, coverage outside (0, 1), or a fit without its problem.
 
     Notes
     -----
-    On each side the value is moved in steps of ``stderr`` (doubling) until
+    On each side the value is moved in steps of ``std_error`` (doubling) until
     the profile rises above the threshold, then the crossing is found by
     Brent's method; each evaluation is one constrained ``least_squares`` fit
     warm-started from the previous one. For a model linear in its parameters
-    the interval equals ``theta +/- z * stderr``; for a nonlinear model it is
+    the interval equals ``theta +/- z * std_error``; for a nonlinear model it is
     asymmetric where the model curves.
 
     Examples
@@ -66,8 +66,8 @@ def profile_interval(fit: CalibrationFit, param: int | str, *, level: float = 0.
 
     if not isinstance(fit, CalibrationFit) or fit._problem is None:
         raise InputError("fit: expected the result of whiten.calibrate(...)")
-    if not (isinstance(level, (int, float)) and 0 < level < 1):
-        raise InputError(f"level: expected a number between 0 and 1, got {level!r}")
+    if not (isinstance(coverage, (int, float)) and 0 < coverage < 1):
+        raise InputError(f"coverage: expected a number between 0 and 1, got {coverage!r}")
     k = fit.theta.shape[0]
     if isinstance(param, str):
         if param not in fit.names:
@@ -79,7 +79,7 @@ def profile_interval(fit: CalibrationFit, param: int | str, *, level: float = 0.
             raise InputError(f"param: index {j} out of range for {k} parameters")
         j %= k
     prob: Problem = fit._problem
-    thr = float(stats.chi2.ppf(level, 1)) * prob.rescale_factor
+    thr = float(stats.chi2.ppf(coverage, 1)) * prob.rescale_factor
     n = prob.y.shape[0]
     state = {"theta": fit.theta.copy(), "fits": 0}
 
@@ -95,7 +95,8 @@ def profile_interval(fit: CalibrationFit, param: int | str, *, level: float = 0.
         return c - prob.chi2 - thr
 
     est = float(fit.theta[j])
-    step = float(fit.stderr[j]) if np.isfinite(fit.stderr[j]) and fit.stderr[j] > 0 else (abs(est) * 0.1 or 0.1)
+    se_j = float(fit.std_error[j])
+    step = se_j if np.isfinite(se_j) and se_j > 0 else (abs(est) * 0.1 or 0.1)
     ends = []
     for sign, bound in ((-1.0, prob.lower[j]), (1.0, prob.upper[j])):
         state["theta"] = fit.theta.copy()
@@ -114,4 +115,4 @@ def profile_interval(fit: CalibrationFit, param: int | str, *, level: float = 0.
                 break
             inner, h = v, h * 2.0
         ends.append(float(end))
-    return ProfileInterval(fit.names[j], est, ends[0], ends[1], float(level), thr, int(state["fits"]))
+    return ProfileInterval(fit.names[j], est, ends[0], ends[1], float(coverage), thr, int(state["fits"]))

@@ -37,8 +37,8 @@ class JacobianHealth:
     jacobian : str
         ``"analytic"`` or ``"finite-difference"`` (central differences at the
         solution for ``theta_cov``).
-    digits_stderr : float
-        Estimated correct significant digits of ``stderr`` (the smallest over
+    digits_std_error : float
+        Estimated correct significant digits of ``std_error`` (the smallest over
         parameters) for the Jacobian as evaluated at ``theta`` and the covariance as
         given: the accuracy of the computation, checked against mpmath in
         ``tests/accuracy/test_calibrate_digits.py``. The diagonal of ``theta_cov``
@@ -53,7 +53,7 @@ class JacobianHealth:
     unidentified: tuple
     covariance: FactorHealth
     jacobian: str
-    digits_stderr: float = float("nan")
+    digits_std_error: float = float("nan")
 
     def to_dict(self) -> dict:
         d = dataclasses.asdict(self)
@@ -73,7 +73,7 @@ class CalibrationFit:
         ``(J_w^T J_w)^{-1}`` for the stated error covariance (times
         ``reduced_chi2`` when ``rescaled``), built as ``R^{-1} R^{-T}`` from the
         QR of the whitened Jacobian ``J_w``. A reported quantity.
-    stderr : ndarray, shape (K,)
+    std_error : ndarray, shape (K,)
         Square roots of the diagonal of ``theta_cov``.
     chi2 : float
         Whitened sum of squares ``||W (y - model(theta))||^2`` at the solution.
@@ -99,7 +99,7 @@ class CalibrationFit:
 
     theta: np.ndarray
     theta_cov: np.ndarray
-    stderr: np.ndarray
+    std_error: np.ndarray
     chi2: float
     dof: int
     p_value: float
@@ -122,8 +122,8 @@ class CalibrationFit:
         import pandas as pd
 
         with np.errstate(divide="ignore", invalid="ignore"):
-            rel = self.stderr / np.abs(self.theta)
-        return pd.DataFrame({"estimate": self.theta, "std_error": self.stderr, "rel_std_error": rel},
+            rel = self.std_error / np.abs(self.theta)
+        return pd.DataFrame({"estimate": self.theta, "std_error": self.std_error, "rel_std_error": rel},
                             index=pd.Index(self.names, name="parameter"))
 
 
@@ -138,7 +138,7 @@ class ProfileInterval:
     lower, upper : float
         Ends of the interval; ``-inf``/``inf`` when the profile did not rise
         above the threshold within the search (or a bound was reached first).
-    level : float
+    coverage : float
     threshold : float
         Rise of the profile chi-square that defines the interval.
     n_fits : int
@@ -149,7 +149,7 @@ class ProfileInterval:
     estimate: float
     lower: float
     upper: float
-    level: float
+    coverage: float
     threshold: float
     n_fits: int
 

@@ -40,12 +40,12 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
     Parameters
     ----------
     a : array_like or pandas.DataFrame, shape (p, p)
-        Symmetric to ``whiten.get_options().symmetry_rtol`` relative to ``max|a|``.
+        Symmetric to ``whiten.current_settings().symmetry_rtol`` relative to ``max|a|``.
         A DataFrame's column names become the factor's ``columns``.
     jitter : {"auto", False} or float
         ``"auto"`` (default): factor ``a`` as given; only if that fails, add an
         increasing ladder of diagonal jitter ``jitter_start * mean(diag a)``,
-        ... up to ``jitter_ceiling * mean(diag a)`` (see :func:`whiten.options`),
+        ... up to ``jitter_ceiling * mean(diag a)`` (see :func:`whiten.settings`),
         with a :class:`~whiten.errors.JitterWarning` giving the amount.
         ``False``: never add jitter; failure raises. A non-negative number:
         add exactly this absolute amount to the diagonal; a positive amount is
@@ -73,7 +73,7 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
     JitterWarning
         When jitter was added (amount, relative amount, condition afterwards).
     ConditioningWarning
-        When ``digits_lost`` exceeds ``whiten.get_options().digits_warn``.
+        When ``digits_lost`` exceeds ``whiten.current_settings().digits_warn``.
 
     Notes
     -----
@@ -166,7 +166,7 @@ def cholesky(a: Any, *, jitter: str | bool | float = "auto", columns: Sequence[s
     raise NotPositiveDefiniteError(
         f"a: could not be factored even with jitter {opts.jitter_ceiling:.1e} of the mean diagonal "
         f"(failed at pivot {_name(names, pivot)}{zv}). Remove dependent variables (see "
-        "whiten.pivoted_cholesky), use a shrinkage estimate, or raise whiten.options(jitter_ceiling=...)",
+        "whiten.pivoted_cholesky), use a shrinkage estimate, or raise whiten.settings(jitter_ceiling=...)",
         pivot=pivot, value=lam_rel)
 
 

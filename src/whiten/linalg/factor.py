@@ -273,7 +273,7 @@ class Factor:
 
         Notes
         -----
-        Row blocks of ``whiten.get_options().block_rows`` rows go through one
+        Row blocks of ``whiten.current_settings().block_rows`` rows go through one
         BLAS-3 triangular solve each; cost N p^2, extra memory one block.
         """
         arr, one = self._rows(x, "x")

@@ -28,18 +28,19 @@ from typing import Any
 
 import numpy as np
 
+from .. import _palette as pal
 from ..errors import InputError
 from ..io.atomic import check_writable, write_bytes
 from .digest import need_score_columns as _need
 
 __all__ = ["distance_chart", "distance_figure", "ewma_chart", "qq_chart", "contribution_chart"]
 
-# a palette of our own: slate for ordinary rows, amber for the limit, crimson for alarms
-_INK = "#2f3e4e"
-_OK = "#6c8ea4"
-_LIMIT = "#d08c1a"
-_ALARM = "#b3202e"
-_GRID = "#e3e7eb"
+# whiten's one palette (whiten._palette): steel blue for ordinary rows, sienna for the limit, crimson for alarms
+_INK = pal.INK
+_OK = pal.PLAIN
+_LIMIT = pal.ACCENT
+_ALARM = pal.ALARM
+_GRID = pal.GRID
 
 
 def _figure(width: float, height: float):

@@ -119,7 +119,7 @@ def score(baseline: Any, data: Any, *, alpha: float = 0.001, missing: str = "mar
 
     Notes
     -----
-    Rows are processed in blocks of ``whiten.get_options().block_rows``; each
+    Rows are processed in blocks of ``whiten.current_settings().block_rows``; each
     block costs two BLAS-3 triangular solves (``z = L^{-1} d`` and
     ``w = L^{-T} z``), 2 N p^2 flops, plus one more when ``order`` differs from
     the baseline's. Rows with missing sensors are grouped by pattern and each

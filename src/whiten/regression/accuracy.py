@@ -432,7 +432,7 @@ def derived_digits(st: Statements, design, sol: Solution, s, beta, se, tv, pv, d
     p = len(sol.cols)
     nan = math.nan
     if not p or sol.var_rows is not None or sol.r is None:
-        return {k: nan for k in ("digits_stderr", "digits_tvalues", "digits_pvalues", "digits_conf_int",
+        return {k: nan for k in ("digits_std_error", "digits_t_stat", "digits_p_value", "digits_interval",
                                  "digits_vif", "digits_loglik")}
     c_rel, vif_c, rss_cov, se_cov, nr, ckk, c_full = _cov_parts(design, sol, kind)
     xs = np.abs(sol.x)
@@ -491,10 +491,10 @@ def derived_digits(st: Statements, design, sol: Solution, s, beta, se, tv, pv, d
     ll_abs = 0.5 * n * rss_rel + _logdet_error(design, kind, n) + 2 * EPS * abs(ll) if math.isfinite(ll) else nan
     ll_rel = ll_abs / abs(ll) if ll and math.isfinite(ll) else math.nan
     return {
-        "digits_stderr": _min_digits(se_rel),
-        "digits_tvalues": _min_digits(t_rel) if dof > 0 else math.nan,
-        "digits_pvalues": _min_digits(p_rel) if dof > 0 else math.nan,
-        "digits_conf_int": _min_digits(ci_rel) if dof > 0 else math.nan,
+        "digits_std_error": _min_digits(se_rel),
+        "digits_t_stat": _min_digits(t_rel) if dof > 0 else math.nan,
+        "digits_p_value": _min_digits(p_rel) if dof > 0 else math.nan,
+        "digits_interval": _min_digits(ci_rel) if dof > 0 else math.nan,
         "digits_vif": _min_digits(vif_rel) if vif_rel is not None else math.nan,
         "digits_loglik": float(_digits(ll_rel)) if math.isfinite(ll_rel) else math.nan,
     }

@@ -183,7 +183,7 @@ def fit_linear(
 def _response_units(fit: LinearFit, cy: float, design) -> LinearFit:
     """The fit of ``cy * y`` (cy a power of two) mapped back to the units of ``y``, exactly where a
     figure is linear in y; the log-likelihood and information criteria shift by ``n log cy``."""
-    shift = fit.nobs * math.log(cy)
+    shift = fit.n_rows * math.log(cy)
     h = fit.health
     note = f"the response was equilibrated by 2**{int(round(math.log2(cy)))} (exact) and the results mapped back"
     ridge = fit.ridge
@@ -201,7 +201,7 @@ def _response_units(fit: LinearFit, cy: float, design) -> LinearFit:
                          "(about 1.8e308) in the units given; express the response or those columns in other units "
                          "and fit again")
     return dataclasses.replace(
-        fit, coef=_ro(coef), stderr=_ro(fit.stderr / cy), residual_sd=fit.residual_sd / cy,
+        fit, coef=_ro(coef), std_error=_ro(fit.std_error / cy), residual_sd=fit.residual_sd / cy,
         loglik=fit.loglik + shift, aic=fit.aic - 2 * shift, bic=fit.bic - 2 * shift,
         fitted=_ro(fit.fitted / cy), residuals=_ro(fit.residuals / cy), ridge=ridge,
         health=dataclasses.replace(h, notes=tuple(h.notes) + (note,)),

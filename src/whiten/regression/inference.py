@@ -141,7 +141,7 @@ def assemble(design: Design, sol: Solution, s, r_full, aside, tol, policy, *, rs
     bound, digits, solved = st.error_bound, st.digits_data, st.digits_computed
     more = accuracy.derived_digits(st, design, sol, s, beta, se, tv, pv, dof, rss, ll, n)
     health = FitHealth(
-        method=sol.method, condition_number=cond, condition_number_raw=cond_raw, condition_number_fitted=cond_fit,
+        method=sol.method, condition=cond, condition_raw=cond_raw, condition_fitted=cond_fit,
         error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=sol.steps,
         refinement_converged=bool(sol.converged), last_correction=sol.last_corr,
         residual_arithmetic=sol.arithmetic, rank=rank, n_columns=p, rank_tol=tol,
@@ -163,10 +163,10 @@ def assemble(design: Design, sol: Solution, s, r_full, aside, tol, policy, *, rs
              + "Consider removing near-duplicate columns, centring polynomial terms, or ridge=...")
     weighted = "gls" if design.factor is not None else ("wls" if design.sqrt_w is not None else "none")
     return LinearFit(
-        names=tuple(out_names), coef=read_only(coef), stderr=read_only(stderr), tvalues=read_only(tvals),
-        pvalues=read_only(pvals),
-        residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=float(fstat), f_pvalue=float(fp),
-        loglik=ll, aic=aic, bic=bic, nobs=n, dof=dof, dof_model=dof_model, rank=rank, vif=read_only(vif),
+        names=tuple(out_names), coef=read_only(coef), std_error=read_only(stderr), t_stat=read_only(tvals),
+        p_value=read_only(pvals),
+        residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=float(fstat), f_p_value=float(fp),
+        loglik=ll, aic=aic, bic=bic, n_rows=n, dof=dof, dof_model=dof_model, rank=rank, vif=read_only(vif),
         collinearity=coll, fitted=fitted if vectors is not None else read_only(fitted),
         residuals=resid if vectors is not None else read_only(resid), health=health,
         intercept=design.intercept, columns=tuple(design.names), weighted=weighted,

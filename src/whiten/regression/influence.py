@@ -30,25 +30,29 @@ class InfluenceReport:
     ----------
     leverage : ndarray, shape (n,)
         Diagonal of the hat matrix, ``||q_i||^2``.
-    studentized_internal : ndarray, shape (n,)
-        ``e_i / (s sqrt(1 - h_i))``.
-    studentized_external : ndarray, shape (n,)
-        ``e_i / (s_(i) sqrt(1 - h_i))`` with ``s_(i)`` the residual SD without row i.
-    cooks_distance : ndarray, shape (n,)
-        ``e_i^2 h_i / (p s^2 (1 - h_i)^2)``.
-    dfbetas : ndarray, shape (n, k)
+    scaled_residual : ndarray, shape (n,)
+        The residual over its own standard deviation, ``e_i / (s sqrt(1 - h_i))``
+        (the internally studentized residual).
+    deleted_residual : ndarray, shape (n,)
+        The same with the residual SD ``s_(i)`` of the fit without row i,
+        ``e_i / (s_(i) sqrt(1 - h_i))`` (the externally studentized residual;
+        Student t on ``n - p - 1`` degrees of freedom under the model).
+    cook_distance : ndarray, shape (n,)
+        Cook's distance, ``e_i^2 h_i / (p s^2 (1 - h_i)^2)``.
+    coef_shift : ndarray, shape (n, k)
         Change in each fitted coefficient when row i is left out, in units of
-        its standard error computed without row i.
+        its standard error computed without row i (Belsley, Kuh and Welsch's
+        DFBETAS). In :meth:`to_frame` the columns are ``coef_shift:<name>``.
     names : tuple of str
-        Coefficients of the ``dfbetas`` columns.
+        Coefficients of the ``coef_shift`` columns.
     index : pandas.Index or None
     """
 
     leverage: np.ndarray
-    studentized_internal: np.ndarray
-    studentized_external: np.ndarray
-    cooks_distance: np.ndarray
-    dfbetas: np.ndarray
+    scaled_residual: np.ndarray
+    deleted_residual: np.ndarray
+    cook_distance: np.ndarray
+    coef_shift: np.ndarray
     names: tuple
     index: object = None
 
@@ -56,16 +60,16 @@ class InfluenceReport:
         import pandas as pd
 
         df = pd.DataFrame({
-            "leverage": self.leverage, "studentized_internal": self.studentized_internal,
-            "studentized_external": self.studentized_external, "cooks_distance": self.cooks_distance,
+            "leverage": self.leverage, "scaled_residual": self.scaled_residual,
+            "deleted_residual": self.deleted_residual, "cook_distance": self.cook_distance,
         }, index=self.index)
         for j, nm in enumerate(self.names):
-            df[f"dfbetas[{nm}]"] = self.dfbetas[:, j]
+            df[f"coef_shift:{nm}"] = self.coef_shift[:, j]
         return df
 
     def to_dict(self) -> dict:
         return {k: json_ready(np.ravel(getattr(self, k)))
-                for k in ("leverage", "studentized_internal", "studentized_external", "cooks_distance")}
+                for k in ("leverage", "scaled_residual", "deleted_residual", "cook_distance")}
 
 
 def influence(fit) -> InfluenceReport:

@@ -65,14 +65,14 @@ class FitHealth:
     ----------
     method : str
         What ran, e.g. ``"householder"`` or ``"blocked-tsqr"``, plus any hand-over.
-    condition_number : float
+    condition : float
         2-norm condition number of the design (all columns, intercept included)
         with columns scaled to unit length (Belsley's convention). This is the
         one that governs accuracy.
-    condition_number_raw : float
+    condition_raw : float
         The same for the design as given (units matter: a column in
         nanometres next to one in kilometres makes this large harmlessly).
-    condition_number_fitted : float
+    condition_fitted : float
         Scaled condition number of the columns actually fitted (after any were
         set aside).
     error_bound : float
@@ -98,7 +98,7 @@ class FitHealth:
         sensitivity) and any jitter's effect.
     error_cov : ErrorCovHealth or None
         Health of the weights or error covariance (None for OLS).
-    digits_stderr, digits_tvalues, digits_pvalues, digits_conf_int, digits_vif, digits_loglik : float
+    digits_std_error, digits_t_stat, digits_p_value, digits_interval, digits_vif, digits_loglik : float
         Estimated correct significant digits of those results for the data as
         given (the smallest over coefficients): never more than the solve that
         produced them. NaN where the quantity is not reported.
@@ -121,9 +121,9 @@ class FitHealth:
     """
 
     method: str
-    condition_number: float
-    condition_number_raw: float
-    condition_number_fitted: float
+    condition: float
+    condition_raw: float
+    condition_fitted: float
     error_bound: float
     digits_trusted: float
     digits_solved: float
@@ -139,10 +139,10 @@ class FitHealth:
     notes: tuple
     solve_error: float = float("nan")
     error_cov: ErrorCovHealth | None = None
-    digits_stderr: float = float("nan")
-    digits_tvalues: float = float("nan")
-    digits_pvalues: float = float("nan")
-    digits_conf_int: float = float("nan")
+    digits_std_error: float = float("nan")
+    digits_t_stat: float = float("nan")
+    digits_p_value: float = float("nan")
+    digits_interval: float = float("nan")
     digits_vif: float = float("nan")
     digits_loglik: float = float("nan")
 
@@ -207,24 +207,27 @@ class LinearFit:
     Attributes
     ----------
     names : tuple of str
-    coef, stderr, tvalues, pvalues : ndarray, shape (k,)
+    coef, std_error, t_stat, p_value : ndarray, shape (k,)
+        Estimates, their standard errors, ``coef / std_error`` and its two-sided
+        p-value (Student t on ``dof``).
     residual_sd : float
         ``sqrt(RSS / dof)`` in whitened units (for WLS/GLS the scale of a unit-weight error).
     r_squared, adj_r_squared : float
         Centred when there is an intercept, uncentred otherwise (the convention
         of NIST StRD and of common practice); for WLS/GLS on the whitened model.
-    f_statistic, f_pvalue : float
+    f_statistic, f_p_value : float
         Test that every coefficient except the intercept is zero.
     loglik, aic, bic : float
         Gaussian log-likelihood at the maximum-likelihood error variance;
         ``aic = -2 loglik + 2 rank``, ``bic = -2 loglik + log(n) rank``.
-    nobs : int
+    n_rows : int
+        Rows fitted.
     dof : int
         Residual degrees of freedom ``n - rank`` (for ridge ``n - effective dof``).
     dof_model : int
         ``rank`` minus 1 for the intercept.
     rank : int
-    condition_number, condition_number_raw : float
+    condition, condition_raw : float
         See :class:`FitHealth` (scaled = Belsley's unit-length columns; raw = as given).
     vif : ndarray, shape (n_predictors,)
         Centred VIF of each predictor (intercept excluded; for WLS/GLS, of the
@@ -242,18 +245,18 @@ class LinearFit:
 
     names: tuple
     coef: np.ndarray
-    stderr: np.ndarray
-    tvalues: np.ndarray
-    pvalues: np.ndarray
+    std_error: np.ndarray
+    t_stat: np.ndarray
+    p_value: np.ndarray
     residual_sd: float
     r_squared: float
     adj_r_squared: float
     f_statistic: float
-    f_pvalue: float
+    f_p_value: float
     loglik: float
     aic: float
     bic: float
-    nobs: int
+    n_rows: int
     dof: float
     dof_model: float
     rank: int
@@ -277,47 +280,51 @@ class LinearFit:
 
     def __repr__(self) -> str:
         h = self.health
-        return (f"LinearFit(nobs={self.nobs}, rank={self.rank}/{h.n_columns}, r_squared={self.r_squared:.6g}, "
-                f"residual_sd={self.residual_sd:.6g}, condition_number={h.condition_number:.3g}, "
+        return (f"LinearFit(n_rows={self.n_rows}, rank={self.rank}/{h.n_columns}, r_squared={self.r_squared:.6g}, "
+                f"residual_sd={self.residual_sd:.6g}, condition={h.condition:.3g}, "
                 f"digits_trusted={h.digits_trusted:.1f}, digits_solved={h.digits_solved:.1f}, method={h.method!r}"
                 + (f", ridge={self.ridge.penalty:.4g}" if self.ridge is not None else "") + ")")
 
     # ------------------------------------------------------------ simple views
     @property
-    def condition_number(self) -> float:
-        return self.health.condition_number
+    def condition(self) -> float:
+        return self.health.condition
 
     @property
-    def condition_number_raw(self) -> float:
-        return self.health.condition_number_raw
+    def condition_raw(self) -> float:
+        return self.health.condition_raw
 
-    def conf_int(self, level: float = 0.95) -> np.ndarray:
-        """Two-sided intervals ``coef -/+ t_{dof} * stderr``, shape (k, 2).
+    def coef_interval(self, coverage: float = 0.95) -> np.ndarray:
+        """Two-sided intervals ``coef -/+ t_{dof} * std_error`` with the given coverage, shape (k, 2).
+
+        Column 0 is the lower end, column 1 the upper end, rows in the order of :attr:`names`.
 
         Raises
         ------
         InputError
-            ``level`` not strictly between 0 and 1.
+            ``coverage`` not strictly between 0 and 1.
         """
-        q = t_quantile(level, self.dof)
-        return np.column_stack([self.coef - q * self.stderr, self.coef + q * self.stderr])
+        q = t_quantile(coverage, self.dof)
+        return np.column_stack([self.coef - q * self.std_error, self.coef + q * self.std_error])
 
-    def predict(self, x: Any, interval: str | None = None, level: float = 0.95):
-        """Predicted mean at new rows, optionally with an interval.
+    def predict(self, x: Any, band: str | None = None, coverage: float = 0.95):
+        """Predicted mean at new rows, optionally with a band around it.
 
         Parameters
         ----------
         x : array_like or DataFrame, shape (m, n_predictors) or (n_predictors,)
             Predictors only (the intercept is added). A DataFrame is matched by
             column name.
-        interval : {None, "confidence", "prediction"}
-            ``"confidence"``: for the mean response; ``"prediction"``: for one
-            new observation of unit weight (adds ``residual_sd**2``).
-        level : float
+        band : {None, "mean", "new_row"}
+            ``"mean"``: where the mean response at those predictors lies;
+            ``"new_row"``: where one new row of unit weight will fall (adds
+            ``residual_sd**2`` to the variance).
+        coverage : float
+            Probability the band is built to cover (default 0.95).
 
         Returns
         -------
-        ndarray, shape (m,) when ``interval`` is None; otherwise a DataFrame
+        ndarray, shape (m,) when ``band`` is None; otherwise a DataFrame
         with columns ``fitted``, ``lower``, ``upper``, ``std_error``.
 
         Notes
@@ -327,23 +334,23 @@ class LinearFit:
         aside for collinearity are ignored: the prediction is valid where the new
         rows obey the same dependence.
         """
-        if interval not in (None, "confidence", "prediction"):
-            raise InputError(f"interval: choose None, 'confidence' or 'prediction', got {interval!r}")
+        if band not in (None, "mean", "new_row"):
+            raise InputError(f"band: choose None, 'mean' or 'new_row', got {band!r}")
         rows, one, index = as_rows(x, len(self.columns), names=list(self.columns), name="x")
         design = np.column_stack([np.ones(rows.shape[0]), rows]) if self.intercept else rows
         cols = list(self._fit_cols)
         beta = self._coef_fitted()
         mean = design[:, cols] @ beta
-        if interval is None:
+        if band is None:
             return float(mean[0]) if one else mean
         if self._r is None:
-            raise InputError("predict: intervals are not available for this fit (ridge by criterion)")
+            raise InputError("predict: bands are not available for this fit (ridge by criterion)")
         assert self._scale is not None  # every fit that keeps _r keeps its column scale too
         z = tri_solve(self._r, (design[:, cols] * self._scale[None, :]).T, trans=True)
         se = self.residual_sd * np.sqrt(np.einsum("ij,ij->j", z, z))
-        if interval == "prediction":
+        if band == "new_row":
             se = np.sqrt(se ** 2 + self.residual_sd ** 2)
-        q = t_quantile(level, self.dof)
+        q = t_quantile(coverage, self.dof)
         import pandas as pd
 
         return pd.DataFrame({"fitted": mean, "lower": mean - q * se, "upper": mean + q * se, "std_error": se},
@@ -360,60 +367,69 @@ class LinearFit:
         return self.ridge is None and self._r is not None
 
     def influence(self):
-        """Leverage, studentized residuals, Cook's distance and DFBETAS (see :func:`whiten.influence`)."""
+        """Leverage, scaled and deleted residuals, Cook's distance, coefficient shifts (:func:`whiten.influence`)."""
         from .influence import influence
 
         return influence(self)
 
-    def to_frame(self):
-        """One row per coefficient: estimate, std_error, t_ratio, p_value, low_95, high_95, vif."""
+    def to_frame(self, coverage: float = 0.95):
+        """One row per coefficient, indexed by ``name``, with the columns named like the attributes.
+
+        Columns: ``coef``, ``std_error``, ``t_stat``, ``p_value``, ``lower`` and
+        ``upper`` (the :meth:`coef_interval` with this ``coverage``) and ``vif``
+        (NaN for the intercept).
+        """
         import pandas as pd
 
-        ci = self.conf_int(0.95)
+        ci = self.coef_interval(coverage)
         vif = np.full(len(self.names), np.nan)
         pred_pos = {n: i for i, n in enumerate(self.columns)}
         for i, n in enumerate(self.names):
             if n in pred_pos:
                 vif[i] = self.vif[pred_pos[n]]
         return pd.DataFrame({
-            "estimate": self.coef, "std_error": self.stderr, "t_ratio": self.tvalues, "p_value": self.pvalues,
-            "low_95": ci[:, 0], "high_95": ci[:, 1], "vif": vif,
-        }, index=pd.Index(list(self.names), name="term"))
+            "coef": self.coef, "std_error": self.std_error, "t_stat": self.t_stat, "p_value": self.p_value,
+            "lower": ci[:, 0], "upper": ci[:, 1], "vif": vif,
+        }, index=pd.Index(list(self.names), name="name"))
 
-    def to_dict(self) -> dict:
-        """JSON-serialisable summary (NaN as null, infinities as the strings "inf"/"-inf")."""
-        ci = self.conf_int(0.95)
+    def to_dict(self, coverage: float = 0.95) -> dict:
+        """JSON-serialisable summary (NaN as null, infinities as the strings "inf"/"-inf").
+
+        The keys are the attribute names; ``coef_interval`` holds the
+        ``coverage`` and the ``lower`` and ``upper`` ends per coefficient.
+        """
+        ci = self.coef_interval(coverage)
         return {
             "names": list(self.names),
-            "coef": _numbers(self.coef), "stderr": _numbers(self.stderr),
-            "tvalues": _numbers(self.tvalues), "pvalues": _numbers(self.pvalues),
-            "conf_int_95": [_numbers(r) for r in ci],
+            "coef": _numbers(self.coef), "std_error": _numbers(self.std_error),
+            "t_stat": _numbers(self.t_stat), "p_value": _numbers(self.p_value),
+            "coef_interval": {"coverage": float(coverage), "lower": _numbers(ci[:, 0]), "upper": _numbers(ci[:, 1])},
             "columns": list(self.columns), "vif": _numbers(self.vif),
             "residual_sd": json_number(self.residual_sd), "r_squared": json_number(self.r_squared),
             "adj_r_squared": json_number(self.adj_r_squared),
-            "f_statistic": json_number(self.f_statistic), "f_pvalue": json_number(self.f_pvalue),
+            "f_statistic": json_number(self.f_statistic), "f_p_value": json_number(self.f_p_value),
             "loglik": json_number(self.loglik), "aic": json_number(self.aic), "bic": json_number(self.bic),
-            "nobs": int(self.nobs), "dof": json_number(self.dof), "dof_model": json_number(self.dof_model),
+            "n_rows": int(self.n_rows), "dof": json_number(self.dof), "dof_model": json_number(self.dof_model),
             "rank": int(self.rank), "intercept": bool(self.intercept), "weighted": self.weighted,
-            "condition_number": json_number(self.condition_number),
-            "condition_number_raw": json_number(self.condition_number_raw),
+            "condition": json_number(self.condition),
+            "condition_raw": json_number(self.condition_raw),
             "health": self.health.to_dict(),
             "collinearity": self.collinearity.to_dict(),
             "ridge": None if self.ridge is None else self.ridge.to_dict(),
         }
 
 
-def t_quantile(level: float, dof: float) -> float:
-    """Two-sided Student-t quantile for ``level`` (NaN when ``dof <= 0``); checks ``level``."""
+def t_quantile(coverage: float, dof: float) -> float:
+    """Two-sided Student-t quantile for ``coverage`` (NaN when ``dof <= 0``); checks ``coverage``."""
     try:
-        level = float(level)
+        coverage = float(coverage)
     except (TypeError, ValueError):
-        raise InputError(f"level: expected a number between 0 and 1, got {level!r}") from None
-    if not 0 < level < 1:
-        raise InputError(f"level: must be strictly between 0 and 1 (e.g. 0.95), got {level}")
+        raise InputError(f"coverage: expected a number between 0 and 1, got {coverage!r}") from None
+    if not 0 < coverage < 1:
+        raise InputError(f"coverage: must be strictly between 0 and 1 (e.g. 0.95), got {coverage}")
     if not dof > 0:
         return math.nan
-    return float(stats.t.ppf(0.5 + level / 2, dof))
+    return float(stats.t.ppf(0.5 + coverage / 2, dof))
 
 
 def _numbers(a) -> list:

@@ -86,10 +86,10 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     Returns
     -------
     LinearFit
-        With ``.ridge`` (a :class:`RidgeInfo`) filled in. ``stderr`` are the
+        With ``.ridge`` (a :class:`RidgeInfo`) filled in. ``std_error`` are the
         standard deviations of the (biased) ridge estimates at the chosen penalty,
         ``sigma * sqrt(diag(V S^2 (S^2 + lambda)^-2 V^T))`` (inverse-free, from
-        the SVD); ``tvalues``/``pvalues`` are NaN because the estimates are biased
+        the SVD); ``t_stat``/``p_value`` are NaN because the estimates are biased
         and the usual t reference does not hold.
 
     Raises
@@ -210,8 +210,8 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     steps += steps2
     digits, solved = sensitivity_digits(bound), sensitivity_digits(solve_err)
     health = FitHealth(
-        method="ridge-augmented-householder", condition_number=float(coll.condition_indices[-1]),
-        condition_number_raw=condition_2(r_full / s_full[None, :]), condition_number_fitted=cond_aug,
+        method="ridge-augmented-householder", condition=float(coll.condition_indices[-1]),
+        condition_raw=condition_2(r_full / s_full[None, :]), condition_fitted=cond_aug,
         error_bound=bound, digits_trusted=digits, digits_solved=solved, refinement_steps=steps,
         refinement_converged=bool(conv), last_correction=corr, residual_arithmetic="compensated",
         rank=design.p, n_columns=design.p, rank_tol=tol, set_aside=(), dependencies=(),
@@ -226,9 +226,9 @@ def fit_ridge(design, ridge, *, standardize: bool = False, grid=None):
     fstat = (ess / dof_model) / (rss / dof) if dof_model > 0 and dof > 0 and rss > 0 else math.nan
     fp = float(stats.f.sf(fstat, dof_model, dof)) if math.isfinite(fstat) else math.nan
     return LinearFit(
-        names=tuple(design.all_names), coef=read_only(coef), stderr=read_only(stderr), tvalues=read_only(nan),
-        pvalues=read_only(nan.copy()), residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=fstat,
-        f_pvalue=fp, loglik=ll, aic=-2 * ll + 2 * edf, bic=-2 * ll + math.log(n) * edf, nobs=n, dof=dof,
+        names=tuple(design.all_names), coef=read_only(coef), std_error=read_only(stderr), t_stat=read_only(nan),
+        p_value=read_only(nan.copy()), residual_sd=sigma, r_squared=r2, adj_r_squared=adj, f_statistic=fstat,
+        f_p_value=fp, loglik=ll, aic=-2 * ll + 2 * edf, bic=-2 * ll + math.log(n) * edf, n_rows=n, dof=dof,
         dof_model=dof_model, rank=design.p, vif=read_only(vif), collinearity=coll, fitted=read_only(fitted),
         residuals=read_only(design.y - fitted), health=health, intercept=icpt,
         columns=tuple(design.names),

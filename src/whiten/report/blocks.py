@@ -22,10 +22,20 @@ import numpy as np
 from ..errors import InputError
 
 __all__ = ["Section", "KeyFigure", "Paragraph", "Bullets", "Table", "Figure", "TrustLine",
-           "format_number", "CAUTION_SCREEN", "CAUTION_CALIBRATION", "TONES"]
+           "format_number", "CAUTION_SCREEN", "CAUTION_CALIBRATION", "CAUTION_REGRESSION",
+           "CAUTION_INDEPENDENT_ROWS", "TONES"]
 
 CAUTION_SCREEN = ("A statistical screen is not a protective function: an alarm here, or its absence, "
                   "does not replace the plant's safety systems, interlocks or operating procedures.")
+CAUTION_REGRESSION = ("A regression describes the rows it was fitted on: a coefficient is an association, "
+                      "not a cause; coefficients of nearly collinear columns are not separately determined; "
+                      "a prediction outside the range of the fitted rows is an extrapolation. Check the "
+                      "residuals and the influence of single rows before relying on the fit.")
+CAUTION_INDEPENDENT_ROWS = ("The exact limits, p-values and the count expected by chance assume independent "
+                            "rows. Readings minutes apart are usually correlated: alarms then come in runs "
+                            "and false alarms over a long record are more frequent than stated. Subsample, "
+                            "widen the limit, or model the dependence; and make sure the reference period "
+                            "was itself in control.")
 CAUTION_CALIBRATION = ("Regulated calibration follows local codes and accredited practice; these figures "
                        "support such work and do not certify an instrument or a measurement.")
 

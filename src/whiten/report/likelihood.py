@@ -7,9 +7,11 @@ from typing import Any
 
 import numpy as np
 
+from .. import _palette as pal
 from .._numerics import DIGITS, digits_trusted
 from .._settings import current
 from ..errors import InputError
+from .blocks import CAUTION_CALIBRATION
 from .document import Report, format_number
 from .provenance import Provenance
 
@@ -90,7 +92,7 @@ def _chart(rows):
     dof = rows["dof"].to_numpy()
     fig = Figure(figsize=(10.0, 3.4), dpi=100)
     FigureCanvasAgg(fig)
-    ink, dots, line = "#1f2a33", "#3c5a78", "#a0522d"
+    ink, dots, line = pal.INK, pal.PLAIN, pal.ACCENT
     ax = fig.add_subplot(1, 2, 1)
     x = np.arange(len(rows))
     ax.plot(x[ok], rows["loglik"].to_numpy(dtype=float)[ok], color=dots, linewidth=0.7, marker="o", markersize=2)
@@ -113,7 +115,7 @@ def _chart(rows):
         for side in ("top", "right"):
             a.spines[side].set_visible(False)
         a.tick_params(labelsize=8)
-        a.grid(True, color="#e4e8eb", linewidth=0.7)
+        a.grid(True, color=pal.GRID, linewidth=0.7)
     fig.tight_layout()
     return fig
 
@@ -247,15 +249,15 @@ def likelihood_report(result: Any, model: Any = None, *, provenance: Provenance 
     return rep
 
 
-def _parameter_table(fit: Any, level: float):
+def _parameter_table(fit: Any, coverage: float):
     import pandas as pd
     from scipy import stats
 
-    if not (0.0 < float(level) < 1.0):
-        raise InputError(f"level: expected a probability strictly between 0 and 1, got {level!r}")
+    if not (0.0 < float(coverage) < 1.0):
+        raise InputError(f"coverage: expected a probability strictly between 0 and 1, got {coverage!r}")
     theta = np.asarray(fit.theta, dtype=float)
-    se = np.asarray(fit.stderr, dtype=float)
-    tail = 0.5 * (1.0 + float(level))
+    se = np.asarray(fit.std_error, dtype=float)
+    tail = 0.5 * (1.0 + float(coverage))
     # a stated (known) error covariance gives normal intervals; a rescaled one, Student t on dof
     q = float(stats.t.ppf(tail, fit.dof)) if fit.rescaled and fit.dof > 0 else float(stats.norm.ppf(tail))
     names = [str(n) for n in (fit.names or [f"theta{k}" for k in range(theta.size)])]
@@ -265,7 +267,7 @@ def _parameter_table(fit: Any, level: float):
 
 
 def calibration_report(fit: Any, *, provenance: Provenance | None = None, title: str | None = None,
-                       level: float = 0.95, charts: bool = True) -> Report:
+                       coverage: float = 0.95, charts: bool = True) -> Report:
     """Build the report of a calibration (:func:`whiten.calibrate`).
 
     Parameters
@@ -273,8 +275,8 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
     fit : CalibrationFit
     provenance : Provenance, optional
     title : str, optional
-    level : float
-        Interval level of the parameter table.
+    coverage : float
+        Coverage of the intervals in the parameter table.
     charts : bool
 
     Returns
@@ -284,11 +286,11 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
     Raises
     ------
     InputError
-        Not a calibration result, or ``level`` outside (0, 1).
+        Not a calibration result, or ``coverage`` outside (0, 1).
 
     Notes
     -----
-    Intervals are ``theta -/+ q * stderr`` with ``q`` the normal quantile when
+    Intervals are ``theta -/+ q * std_error`` with ``q`` the normal quantile when
     the error covariance is taken as stated, and the Student t quantile on the
     residual degrees of freedom when ``theta_cov`` was rescaled by the reduced
     chi-square. The chi-square p-value says whether the stated covariance
@@ -304,15 +306,16 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
     >>> [f.value for f in rep.figures if f.key == "chi2"] == [fit.chi2]
     True
     """
-    need = ("theta", "stderr", "chi2", "dof", "p_value", "health", "residuals", "rescaled")
+    need = ("theta", "std_error", "chi2", "dof", "p_value", "health", "residuals", "rescaled")
     gone = [a for a in need if not hasattr(fit, a)]
     if gone:
         raise InputError(f"fit: expected the result of whiten.calibrate; it lacks {gone}")
-    table, q = _parameter_table(fit, level)
+    table, q = _parameter_table(fit, coverage)
     h = fit.health
     rep = Report(title or "Calibration", job="calibration",
                  lede=(f"{table.shape[0]} parameter(s) fitted to {np.size(fit.residuals)} observations by "
-                       "Gaussian least squares under the stated error covariance."), provenance=provenance)
+                       "Gaussian least squares under the stated error covariance."), provenance=provenance,
+                 cautions=[CAUTION_CALIBRATION])
     pv = float(fit.p_value)
     rep.key_figure("Chi-square", float(fit.chi2), digits=6, key="chi2", note=f"on {fit.dof} degrees of freedom")
     rep.key_figure("Goodness-of-fit p-value", pv, digits=3, key="p-value",
@@ -320,10 +323,10 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
                    note="chance of a chi-square at least this large if the covariance is right")
     rep.key_figure("Reduced chi-square", float(fit.reduced_chi2), digits=4, key="reduced-chi2",
                    note="about 1 when the stated covariance fits")
-    se_digits = float(getattr(h, "digits_stderr", math.nan))
+    se_digits = float(getattr(h, "digits_std_error", math.nan))
     if math.isfinite(se_digits):
         # the statement: digits of the standard errors computed right for the Jacobian as evaluated and the
-        # covariance as given (accuracy of the computation; JacobianHealth.digits_stderr)
+        # covariance as given (accuracy of the computation; JacobianHealth.digits_std_error)
         rep.key_figure("Digits of the standard errors", se_digits, text=f"{se_digits:.1f}", key="digits",
                        tone="alert" if 15.95 - se_digits > current().digits_warn else "good",
                        note=("computed right for the Jacobian as evaluated and the covariance as given "
@@ -359,9 +362,9 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
 
     sec = rep.section("Parameters", key="parameters")
     law = "Student t" if fit.rescaled and fit.dof > 0 else "normal"
-    sec.paragraph(f"Each parameter with its two-sided {100 * float(level):g}% interval, estimate minus and plus "
+    sec.paragraph(f"Each parameter with its two-sided {100 * float(coverage):g}% interval, estimate minus and plus "
                   f"{q:.4g} standard errors ({law} quantile).")
-    sec.table(table, f"Fitted parameters with {100 * float(level):g}% intervals", key="parameters",
+    sec.table(table, f"Fitted parameters with {100 * float(coverage):g}% intervals", key="parameters",
               formats={"estimate": ".8g", "std error": ".3g", "from": ".8g", "to": ".8g"})
     if charts:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -371,14 +374,14 @@ def calibration_report(fit: Any, *, provenance: Provenance | None = None, title:
         fig = Figure(figsize=(8.0, 3.0), dpi=100)
         FigureCanvasAgg(fig)
         ax = fig.add_subplot(1, 1, 1)
-        ax.plot(np.arange(r.size), r, color="#3c5a78", marker="o", markersize=3, linewidth=0.8)
-        ax.axhline(0.0, color="#a0522d", linewidth=1.0)
+        ax.plot(np.arange(r.size), r, color=pal.PLAIN, marker="o", markersize=3, linewidth=0.8)
+        ax.axhline(0.0, color=pal.ACCENT, linewidth=1.0)
         ax.set_xlabel("observation", fontsize=9)
         ax.set_ylabel("residual", fontsize=9)
         ax.set_title("Residuals at the solution (observed minus model)", loc="left", fontsize=10)
         for side in ("top", "right"):
             ax.spines[side].set_visible(False)
-        ax.grid(True, color="#e4e8eb", linewidth=0.7)
+        ax.grid(True, color=pal.GRID, linewidth=0.7)
         fig.tight_layout()
         rep.section("Residuals", key="residuals").figure(
             fig, key="residual-chart",

@@ -12,6 +12,7 @@ import numpy as np
 from .._settings import current
 from ..baseline.health import redundancy
 from ..errors import InputError
+from .blocks import CAUTION_INDEPENDENT_ROWS
 from .document import Report, format_number
 from .provenance import Provenance
 
@@ -268,11 +269,12 @@ def monitoring_report(scores: Any, baseline: Any = None, *, provenance: Provenan
                        + (f" at a false-alarm probability of {alpha:g} per row" if alpha is not None else "")
                        + (f", phase {attrs.get('phase')!r}" if attrs.get("phase") else "") + "."),
                  provenance=provenance)
+    rep.caution(CAUTION_INDEPENDENT_ROWS)
     rep.key_figure("Alarms", n_alarm, note=f"of {n_scored} rows scored", key="alarms",
                    tone="alert" if n_alarm else "good")
     if alpha is not None:
         rep.key_figure("Expected by chance", float(alpha) * n_scored, digits=3, key="expected",
-                       note="alarms a batch of healthy rows would give")
+                       note="alarms a batch of healthy, independent rows would give")
     if dig.n_fdr is not None:
         n_fdr = dig.n_fdr
         rep.key_figure("Flagged by false-discovery control", n_fdr, key="fdr-flags",

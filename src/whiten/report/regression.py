@@ -7,8 +7,10 @@ from typing import Any
 
 import numpy as np
 
+from .. import _palette as pal
 from .._settings import current
 from ..errors import InputError
+from .blocks import CAUTION_REGRESSION
 from .document import Report, format_number
 from .provenance import Provenance
 
@@ -18,23 +20,23 @@ _EPS_DIGITS = 15.95
 
 
 def _check_fit(fit: Any) -> None:
-    need = ("names", "coef", "stderr", "conf_int", "health", "fitted", "residuals", "nobs")
+    need = ("names", "coef", "std_error", "coef_interval", "health", "fitted", "residuals", "n_rows")
     gone = [a for a in need if not hasattr(fit, a)]
     if gone:
         raise InputError(f"fit: expected the result of whiten.fit_linear; it lacks {gone}")
 
 
-def coefficient_table(fit: Any, level: float = 0.95):
-    """Coefficients with their intervals, one row per term, as a DataFrame.
+def coefficient_table(fit: Any, coverage: float = 0.95):
+    """Coefficients with their intervals, one row per coefficient, as a DataFrame.
 
     Columns: ``estimate``, ``from`` and ``to`` (the two-sided interval at
-    ``level``), ``std error``, ``VIF`` (NaN for the intercept), ``note``
+    ``coverage``), ``std error``, ``VIF`` (NaN for the intercept), ``note``
     (``set aside`` for a column not fitted because it depends on others).
 
     Raises
     ------
     InputError
-        Not a fit, or ``level`` outside (0, 1).
+        Not a fit, or ``coverage`` outside (0, 1).
 
     Examples
     --------
@@ -47,7 +49,7 @@ def coefficient_table(fit: Any, level: float = 0.95):
     import pandas as pd
 
     _check_fit(fit)
-    ci = np.asarray(fit.conf_int(level), dtype=float)
+    ci = np.asarray(fit.coef_interval(coverage), dtype=float)
     vif = np.full(len(fit.names), np.nan)
     pos = {n: i for i, n in enumerate(getattr(fit, "columns", ()))}
     fv = np.asarray(getattr(fit, "vif", np.full(len(pos), np.nan)), dtype=float)
@@ -57,8 +59,8 @@ def coefficient_table(fit: Any, level: float = 0.95):
     coef = np.asarray(fit.coef, dtype=float)
     note = ["set aside: depends on earlier columns" if math.isnan(c) else "" for c in coef]
     return pd.DataFrame({"estimate": coef, "from": ci[:, 0], "to": ci[:, 1],
-                         "std error": np.asarray(fit.stderr, dtype=float), "VIF": vif, "note": note},
-                        index=pd.Index([str(n) for n in fit.names], name="term"))
+                         "std error": np.asarray(fit.std_error, dtype=float), "VIF": vif, "note": note},
+                        index=pd.Index([str(n) for n in fit.names], name="coefficient"))
 
 
 def _residual_figure(fit: Any):
@@ -71,13 +73,13 @@ def _residual_figure(fit: Any):
     n = resid.size
     fig = Figure(figsize=(10.5, 3.4), dpi=100)
     FigureCanvasAgg(fig)
-    ink, dots, zero = "#1f2a33", "#3c5a78", "#a0522d"
+    ink, dots, zero = pal.INK, pal.PLAIN, pal.ACCENT
     axes = [fig.add_subplot(1, 3, k + 1) for k in range(3)]
     for ax in axes:
         for side in ("top", "right"):
             ax.spines[side].set_visible(False)
         ax.tick_params(labelsize=8, colors=ink)
-        ax.grid(True, color="#e4e8eb", linewidth=0.7)
+        ax.grid(True, color=pal.GRID, linewidth=0.7)
         ax.set_axisbelow(True)
     size = 10 if n <= 2000 else 3
     axes[0].scatter(fitted, resid, s=size, color=dots, edgecolor="none")
@@ -111,15 +113,15 @@ def _ridge_figure(fit: Any):
     FigureCanvasAgg(fig)
     ax = fig.add_subplot(1, 2, 1)
     for j, nm in enumerate(fit.columns):
-        ax.plot(r.grid, r.paths[:, j], label=str(nm), linewidth=1.1)
-    ax.axvline(r.penalty, color="#a0522d", linestyle=":")
+        ax.plot(r.grid, r.paths[:, j], label=str(nm), linewidth=1.1, color=pal.series(j))
+    ax.axvline(r.penalty, color=pal.ACCENT, linestyle=":")
     ax.set_xscale("log")
     ax.set_xlabel("penalty", fontsize=9)
     ax.set_title("Coefficients along the penalty grid", loc="left", fontsize=10)
     ax.legend(fontsize=7, frameon=False)
     ax = fig.add_subplot(1, 2, 2)
-    ax.plot(r.grid, r.scores, color="#1f2a33")
-    ax.axvline(r.penalty, color="#a0522d", linestyle=":")
+    ax.plot(r.grid, r.scores, color=pal.INK)
+    ax.axvline(r.penalty, color=pal.ACCENT, linestyle=":")
     ax.set_xscale("log")
     ax.set_xlabel("penalty", fontsize=9)
     ax.set_title(f"Criterion ({r.criterion})", loc="left", fontsize=10)
@@ -133,8 +135,8 @@ def _health(rep: Report, fit: Any) -> None:
     lost = _EPS_DIGITS - trusted
     tone = "alert" if lost > current().digits_warn else ("note" if trusted < 8 else "good")
     rep.health("Condition", f"The design, with its columns scaled to unit length, has condition number "
-               f"{format_number(h.condition_number, 3)} ({format_number(h.condition_number_raw, 3)} as given; "
-               f"{format_number(h.condition_number_fitted, 3)} for the columns fitted).", tone)
+               f"{format_number(h.condition, 3)} ({format_number(h.condition_raw, 3)} as given; "
+               f"{format_number(h.condition_fitted, 3)} for the columns fitted).", tone)
     solved = getattr(h, "digits_solved", None)
     words = (f"Sensitivity to the data: about {trusted:.1f} significant digits of the coefficients survive a "
              "change of one unit in the last digit of every input (a first-order worst case)")
@@ -178,7 +180,7 @@ def _health(rep: Report, fit: Any) -> None:
 
 
 def regression_report(fit: Any, *, provenance: Provenance | None = None, title: str | None = None,
-                      response: str | None = None, level: float = 0.95, charts: bool = True) -> Report:
+                      response: str | None = None, coverage: float = 0.95, charts: bool = True) -> Report:
     """Build the report of a regression fit.
 
     Parameters
@@ -189,8 +191,8 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
     title : str, optional
     response : str, optional
         Name of the response, used in the title and the lede.
-    level : float
-        Interval level of the coefficient table.
+    coverage : float
+        Coverage of the intervals in the coefficient table.
     charts : bool
         Draw the residual charts (and, for ridge by a criterion, the paths).
 
@@ -201,14 +203,14 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
     Raises
     ------
     InputError
-        Not a fit, or ``level`` outside (0, 1).
+        Not a fit, or ``coverage`` outside (0, 1).
 
     Notes
     -----
     Key figures: rows, share of variation explained, residual sd, digits of
     the coefficients that can be trusted, the scaled condition number, and the
-    columns set aside. Intervals are ``coef -/+ t * stderr`` from
-    :meth:`LinearFit.conf_int`; no figure is recomputed here.
+    columns set aside. Intervals are ``coef -/+ t * std_error`` from
+    :meth:`LinearFit.coef_interval`; no figure is recomputed here.
 
     Examples
     --------
@@ -221,9 +223,9 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
     True
     """
     _check_fit(fit)
-    table = coefficient_table(fit, level)
+    table = coefficient_table(fit, coverage)
     h = fit.health
-    pct = f"{100 * float(level):g}%"
+    pct = f"{100 * float(coverage):g}%"
     what = response or "the response"
     kind = {"none": "least squares", "wls": "weighted least squares",
             "gls": "generalised least squares"}.get(getattr(fit, "weighted", "none"), "least squares")
@@ -231,11 +233,11 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
         kind = "ridge regression"
     n_pred = len(getattr(fit, "columns", ())) or len(fit.names)
     rep = Report(title or f"Regression of {what}", job="regression",
-                 lede=f"{what} explained by {n_pred} predictor(s) over {fit.nobs} rows, by {kind}.",
-                 provenance=provenance)
+                 lede=f"{what} explained by {n_pred} predictor(s) over {fit.n_rows} rows, by {kind}.",
+                 provenance=provenance, cautions=[CAUTION_REGRESSION])
     trusted = float(h.digits_trusted)
     tone = "alert" if _EPS_DIGITS - trusted > current().digits_warn else ("note" if trusted < 8 else "good")
-    rep.key_figure("Rows", int(fit.nobs), key="rows")
+    rep.key_figure("Rows", int(fit.n_rows), key="rows")
     r2 = float(getattr(fit, "r_squared", np.nan))
     rep.key_figure("Variation explained", r2, text=f"{100 * r2:.4g}%", key="r-squared",
                    note=f"adjusted {100 * float(getattr(fit, 'adj_r_squared', np.nan)):.4g}%")
@@ -247,7 +249,7 @@ def regression_report(fit: Any, *, provenance: Provenance | None = None, title: 
                    note="significant digits of the coefficients for the data exactly as given")
     rep.key_figure("Digits that survive the data's last digit", trusted, text=f"{trusted:.1f}", key="digits",
                    tone=tone, note="sensitivity: one unit changed in the last digit of every input")
-    rep.key_figure("Condition number", float(h.condition_number), digits=3, key="condition",
+    rep.key_figure("Condition number", float(h.condition), digits=3, key="condition",
                    note="columns scaled to unit length", tone=tone)
     if h.set_aside:
         rep.key_figure("Columns set aside", len(h.set_aside), key="set-aside", tone="alert",
